@@ -1,0 +1,408 @@
+"""Plan settings: frozen dataclasses, one per plan-file table, loaded and validated from TOML.
+
+A plan file is TOML with the tables ``[plan]``, ``[inputs]``, ``[window]``, ``[zoning]``,
+``[snow]``, ``[dosing]``, ``[forecast]`` and ``[logistics]``.  Every key has a documented
+default (see ``docs/plan-file.md``), so a plan file may be empty.  Unknown keys, wrong types and
+out-of-range values raise :class:`~courseplan.errors.SettingsError` naming the key, with the
+nearest valid key suggested.  Paths in ``[inputs]`` are relative to the plan file's folder.
+
+This module opens no files: :mod:`courseplan.io.planfile` reads the TOML text.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import types
+import typing
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .errors import SettingsError
+
+SUN_ENCODINGS = ("fraction", "percent", "wh_m2")
+"""Accepted encodings of a sun/shade raster: share of the window in sun (0–1), the same in
+percent (0–100), or irradiation on the surface over the hold window (Wh/m²)."""
+
+
+def _f(default: Any, doc: str, unit: str = "", lo: float | None = None, hi: float | None = None,
+       choices: tuple[str, ...] | None = None, factory: Any = None):
+    meta = {"doc": doc, "unit": unit, "lo": lo, "hi": hi, "choices": choices}
+    if factory is not None:
+        return field(default_factory=factory, metadata=meta)
+    return field(default=default, metadata=meta)
+
+
+@dataclass(frozen=True)
+class PlanInfo:
+    """``[plan]``: what the plan is for."""
+
+    name: str = _f("Untitled plan", "plan name printed on every output")
+    date: str | None = _f(None, "race day, YYYY-MM-DD (needed to compute sun from a DEM and to "
+                                "date observations)")
+    timezone: str = _f("UTC", "IANA time zone of the window times, e.g. Europe/Zurich")
+    agent: str = _f("NaCl", "agent from the catalogue (`courseplan agents`)")
+
+
+@dataclass(frozen=True)
+class Inputs:
+    """``[inputs]``: the files a plan reads."""
+
+    course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads")
+    course_feature: str | None = _f(None, "which feature to use when the course file holds several "
+                                          "polygons: a value of the `name` field or a 0-based index")
+    sun: Path | None = _f(None, "sun/shade raster (GeoTIFF)")
+    sun_encoding: str = _f("fraction", "what the sun raster holds", choices=SUN_ENCODINGS)
+    dem: Path | None = _f(None, "terrain model (GeoTIFF, heights in metres)")
+    observations: Path | None = _f(None, "field observations (CSV or a vector point file)")
+    forecast: Path | None = _f(None, "hourly forecast CSV; without it [forecast] constants are used")
+    centreline: Path | None = _f(None, "course centreline from start to finish (vector line)")
+    markers: Path | None = _f(None, "named section markers along the course (vector points)")
+    agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
+    crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "
+                               "course's if metric, else the local UTM zone)")
+
+
+@dataclass(frozen=True)
+class Window:
+    """``[window]``: the hold window, from salting until the last run ends (local times)."""
+
+    start: str = _f("10:00", "start of the hold window, HH:MM local time")
+    end: str = _f("13:00", "end of the hold window, HH:MM local time")
+    runs: int = _f(2, "number of race runs in the window", lo=1, hi=10)
+
+    @property
+    def hours(self) -> float:
+        """Length of the window [h]."""
+        return (_minutes(self.end, "window.end") - _minutes(self.start, "window.start")) / 60.0
+
+
+@dataclass(frozen=True)
+class Zoning:
+    """``[zoning]``: how the course is split into zones."""
+
+    exposure_breaks: list[float] | None = _f(
+        None, "class breaks in the sun raster's units, ascending; default [0.35, 0.70] for a fraction, "
+              "[35, 70] for percent, [150, 350] Wh/m² per hour of window for irradiation")
+    exposure_labels: list[str] = _f(None, "names of the exposure classes, darkest first (one more "
+                                          "than breaks)", factory=lambda: ["shaded", "part-sun", "full-sun"])
+    slope_breaks_deg: list[float] = _f(None, "slope class breaks when a DEM is given", unit="°",
+                                       factory=lambda: [15.0, 25.0])
+    min_zone_area_m2: float = _f(400.0, "zones smaller than this merge into the most similar neighbour",
+                                 unit="m²", lo=0.0, hi=1e6)
+    section_length_m: float = _f(250.0, "course sections every this many metres from the start",
+                                 unit="m", lo=10.0, hi=1e5)
+    start_xy: list[float] | None = _f(None, "start point [x, y] in the course file's CRS (default: "
+                                            "highest point of the DEM, else the northern end)")
+
+
+def _default_snow_classes() -> dict[str, dict[str, Any]]:
+    # Class defaults used where no observation is near; every value a setting.
+    # Wetness classes after Fierz et al. (2009); densities of prepared pistes 500–650 kg/m³
+    # [from memory, domain-data §6]; these defaults are planning assumptions, not measurements.
+    return {
+        "shaded": {"wetness": "moist", "density_kg_m3": 560.0, "snow_temp_c": 0.0, "grain": "RG"},
+        "part-sun": {"wetness": "wet", "density_kg_m3": 560.0, "snow_temp_c": 0.0, "grain": "MF"},
+        "full-sun": {"wetness": "wet", "density_kg_m3": 560.0, "snow_temp_c": 0.0, "grain": "MF"},
+    }
+
+
+@dataclass(frozen=True)
+class Snow:
+    """``[snow]``: snow state where no observation applies, and how observations are used."""
+
+    classes: dict[str, dict[str, Any]] = _f(None, "default snow state per exposure class "
+                                                  "(wetness or lwc_pct, density_kg_m3, snow_temp_c, grain)",
+                                            factory=_default_snow_classes)
+    max_distance_m: float = _f(150.0, "use the nearest observation of the same exposure class within "
+                                      "this distance", unit="m", lo=0.0, hi=1e5)
+    max_age_h: float = _f(6.0, "observations older than this before the window are flagged", unit="h",
+                          lo=0.0, hi=1e4)
+
+
+@dataclass(frozen=True)
+class Dosing:
+    """``[dosing]``: the cold-balance model's parameters (see docs/model.md)."""
+
+    depth_m: float = _f(0.04, "depth of the layer to harden", unit="m", lo=0.005, hi=0.5)
+    refreeze_share: float = _f(0.5, "share of the free water that must refreeze (k_f)", lo=0.01, hi=1.0)
+    brine_exit_temp_c: float = _f(-2.0, "brine temperature when it leaves the layer (T_b)", unit="°C",
+                                  lo=-15.0, hi=-0.05)
+    lwc_min_pct: float = _f(1.0, "below this liquid water content the snow is too dry", unit="% vol",
+                            lo=0.0, hi=20.0)
+    lwc_max_pct: float = _f(15.0, "above this the snow is slush", unit="% vol", lo=1.0, hi=60.0)
+    min_density_kg_m3: float = _f(350.0, "below this the snow counts as new snow", unit="kg/m³",
+                                  lo=50.0, hi=900.0)
+    mix_depth_m: float = _f(0.01, "top layer one pass mixes into", unit="m", lo=0.001, hi=0.1)
+    slush_limit: float = _f(0.10, "largest share of the mixing layer's ice one pass may melt", lo=0.01,
+                            hi=0.9)
+    albedo: float = _f(0.6, "albedo of the wet snow surface", lo=0.1, hi=0.95)
+    purity: float | None = _f(None, "product purity, overriding the catalogue", lo=0.05, hi=1.0)
+    samples: int = _f(200, "samples for P50/P90", lo=1, hi=100000)
+    seed: int = _f(20261202, "random seed of the sampling (same seed, same numbers)", lo=0)
+
+
+@dataclass(frozen=True)
+class Forecast:
+    """``[forecast]``: plan-wide weather over the window, used when no forecast file is given."""
+
+    air_temp_c: float = _f(4.0, "air temperature at 2 m", unit="°C", lo=-40.0, hi=35.0)
+    rh_pct: float = _f(70.0, "relative humidity", unit="%", lo=1.0, hi=100.0)
+    wind_m_s: float = _f(2.0, "wind speed at 2 m", unit="m/s", lo=0.0, hi=40.0)
+    cloud_fraction: float = _f(0.2, "cloud cover", lo=0.0, hi=1.0)
+    air_temp_spread_k: float = _f(1.5, "forecast spread (one standard deviation) of air temperature",
+                                  unit="K", lo=0.0, hi=15.0)
+
+
+@dataclass(frozen=True)
+class Logistics:
+    """``[logistics]``: order, crews and timing."""
+
+    margin_pct: float = _f(10.0, "safety margin added to the P90 mass before rounding to bags",
+                           unit="%", lo=0.0, hi=200.0)
+    bag_kg: float | None = _f(None, "bag size, overriding the catalogue", unit="kg", lo=0.1, hi=2000.0)
+    price_per_kg: float | None = _f(None, "product price", unit="currency/kg", lo=0.0)
+    currency: str = _f("EUR", "currency of the price")
+    crews: int = _f(3, "number of crews", lo=1, hi=50)
+    spread_rate_m2_min: float = _f(40.0, "area one crew spreads per minute (hand or push spreader)",
+                                   unit="m²/min", lo=1.0, hi=10000.0)
+    carry_min_per_bag: float = _f(2.0, "time to carry one bag from the depot into its zone",
+                                  unit="min", lo=0.0, hi=120.0)
+    handful_g: float = _f(40.0, "mass of one handful for hand spreading (an estimate)", unit="g",
+                          lo=5.0, hi=500.0)
+    wait_min: float = _f(50.0, "time the agent needs before skiing (guidance: 45–60 min)", unit="min",
+                         lo=0.0, hi=600.0)
+
+
+@dataclass(frozen=True)
+class PlanSettings:
+    """All settings of one plan, one attribute per plan-file table."""
+
+    plan: PlanInfo = field(default_factory=PlanInfo)
+    inputs: Inputs = field(default_factory=Inputs)
+    window: Window = field(default_factory=Window)
+    zoning: Zoning = field(default_factory=Zoning)
+    snow: Snow = field(default_factory=Snow)
+    dosing: Dosing = field(default_factory=Dosing)
+    forecast: Forecast = field(default_factory=Forecast)
+    logistics: Logistics = field(default_factory=Logistics)
+
+    def replace(self, **sections: Any) -> PlanSettings:
+        """Return a copy with whole sections replaced."""
+        return dataclasses.replace(self, **sections)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-data view (paths as strings, None left out) for JSON and the GeoPackage."""
+        def plain(v: Any) -> Any:
+            if isinstance(v, Path):
+                return str(v)
+            if isinstance(v, dict):
+                return {k: plain(x) for k, x in v.items()}
+            if isinstance(v, list | tuple):
+                return [plain(x) for x in v]
+            return v
+        out: dict[str, Any] = {}
+        for sec in dataclasses.fields(self):
+            obj = getattr(self, sec.name)
+            out[sec.name] = {f.name: plain(getattr(obj, f.name)) for f in dataclasses.fields(obj)
+                             if getattr(obj, f.name) is not None}
+        return out
+
+
+SECTIONS: dict[str, type] = {f.name: f.default_factory().__class__  # type: ignore[misc]
+                             for f in dataclasses.fields(PlanSettings)}
+
+
+def _minutes(hhmm: str, where: str) -> int:
+    try:
+        h, m = hhmm.split(":")
+        hi, mi = int(h), int(m)
+        if not (0 <= hi <= 23 and 0 <= mi <= 59):
+            raise ValueError
+    except ValueError:
+        raise SettingsError(f"time {hhmm!r} is not HH:MM", where=where,
+                            fix="write a 24-hour local time such as \"10:30\"") from None
+    return hi * 60 + mi
+
+
+def _suggest(name: str, valid: list[str]) -> str:
+    near = difflib.get_close_matches(name, valid, n=1, cutoff=0.5)
+    if near:
+        return f"did you mean {near[0]!r}?"
+    return "valid keys: " + ", ".join(valid)
+
+
+def _check_value(value: Any, tp: Any, where: str, meta: dict[str, Any], base: Path | None) -> Any:
+    origin = typing.get_origin(tp)
+    args = typing.get_args(tp)
+    if origin in (typing.Union, types.UnionType):
+        if value is None and type(None) in args:
+            return None
+        inner = [a for a in args if a is not type(None)]
+        return _check_value(value, inner[0], where, meta, base)
+    if tp is Path:
+        if not isinstance(value, str | Path) or str(value) == "":
+            raise SettingsError(f"expected a file path, got {value!r}", where=where,
+                                fix="write the path as a quoted string")
+        p = Path(value).expanduser()
+        return (base / p) if (base is not None and not p.is_absolute()) else p
+    if tp is bool:
+        if not isinstance(value, bool):
+            raise SettingsError(f"expected true or false, got {value!r}", where=where)
+        return value
+    if tp is int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            raise SettingsError(f"expected a whole number, got {value!r}", where=where,
+                                fix="write it without quotes or decimals")
+        return _check_range(value, where, meta)
+    if tp is float:
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            raise SettingsError(f"expected a number, got {value!r}", where=where,
+                                fix="write it without quotes, e.g. 0.5")
+        return _check_range(float(value), where, meta)
+    if tp is str:
+        if not isinstance(value, str):
+            raise SettingsError(f"expected text, got {value!r}", where=where, fix="put it in quotes")
+        choices = meta.get("choices")
+        if choices and value not in choices:
+            raise SettingsError(f"{value!r} is not one of {', '.join(choices)}", where=where,
+                                fix=_suggest(value, list(choices)))
+        return value
+    if origin is list:
+        if not isinstance(value, list):
+            raise SettingsError(f"expected a list, got {value!r}", where=where, fix="write e.g. [1.0, 2.0]")
+        return [_check_value(v, args[0], f"{where}[{i}]", meta, base) for i, v in enumerate(value)]
+    if origin is dict:
+        if not isinstance(value, dict):
+            raise SettingsError(f"expected a table, got {value!r}", where=where)
+        return dict(value)
+    return value
+
+
+def _check_range(value: float, where: str, meta: dict[str, Any]) -> float:
+    lo, hi, unit = meta.get("lo"), meta.get("hi"), meta.get("unit") or ""
+    if value != value:  # NaN
+        raise SettingsError("value is NaN", where=where, fix="give a number")
+    if (lo is not None and value < lo) or (hi is not None and value > hi):
+        rng = f"{lo if lo is not None else '-inf'} to {hi if hi is not None else 'inf'} {unit}".strip()
+        raise SettingsError(f"{value} is outside the accepted range {rng}", where=where,
+                            fix="give a value in that range")
+    return value
+
+
+def section_from_mapping(cls: type, data: dict[str, Any], where: str, base: Path | None = None,
+                         start: Any = None):
+    """Build a settings section from a mapping, validating keys, types and ranges.
+
+    Parameters
+    ----------
+    cls
+        The section dataclass.
+    data
+        Keys and values from the plan file (or from command-line overrides).
+    where
+        Name used in messages, e.g. ``"plan.toml [dosing]"``.
+    base
+        Folder that relative paths are resolved against.
+    start
+        An existing instance to update; default the section's defaults.
+    """
+    if not isinstance(data, dict):
+        raise SettingsError(f"expected a table, got {data!r}", where=where)
+    hints = typing.get_type_hints(cls)
+    fields_ = {f.name: f for f in dataclasses.fields(cls)}
+    values: dict[str, Any] = {}
+    for key, value in data.items():
+        if key not in fields_:
+            raise SettingsError(f"unknown key {key!r}", where=where, fix=_suggest(key, list(fields_)))
+        values[key] = _check_value(value, hints[key], f"{where} {key}", dict(fields_[key].metadata), base)
+    obj = dataclasses.replace(start if start is not None else cls(), **values)
+    _check_section(obj, where)
+    return obj
+
+
+def _check_section(obj: Any, where: str) -> None:
+    if isinstance(obj, Window):
+        if obj.hours <= 0:
+            raise SettingsError(f"the window ends ({obj.end}) before it starts ({obj.start})", where=where,
+                                fix="give end later than start on the same day")
+    if isinstance(obj, Zoning):
+        if obj.exposure_breaks is not None:
+            b = obj.exposure_breaks
+            if any(b2 <= b1 for b1, b2 in zip(b, b[1:], strict=False)):
+                raise SettingsError(f"exposure_breaks {b} are not ascending", where=where,
+                                    fix="list them from low to high")
+            if len(obj.exposure_labels) != len(b) + 1:
+                raise SettingsError(f"{len(b)} breaks need {len(b) + 1} exposure_labels, got "
+                                    f"{len(obj.exposure_labels)}", where=where,
+                                    fix="give one label more than breaks")
+        if len(obj.exposure_labels) < 3:
+            raise SettingsError("at least three exposure classes are needed", where=where,
+                                fix="give three or more exposure_labels")
+        if len(set(obj.exposure_labels)) != len(obj.exposure_labels):
+            raise SettingsError("exposure_labels repeat a name", where=where, fix="make each label unique")
+        if obj.start_xy is not None and len(obj.start_xy) != 2:
+            raise SettingsError(f"start_xy needs two numbers, got {obj.start_xy}", where=where)
+    if isinstance(obj, Dosing) and obj.lwc_min_pct >= obj.lwc_max_pct:
+        raise SettingsError(f"lwc_min_pct ({obj.lwc_min_pct}) must be below lwc_max_pct "
+                            f"({obj.lwc_max_pct})", where=where)
+    if isinstance(obj, PlanInfo) and obj.date is not None:
+        import datetime as _dt
+        try:
+            _dt.date.fromisoformat(obj.date)
+        except ValueError:
+            raise SettingsError(f"date {obj.date!r} is not YYYY-MM-DD", where=where,
+                                fix='write e.g. "2027-03-14"') from None
+
+
+def settings_from_mapping(data: dict[str, Any], source: str = "plan file", base: Path | None = None,
+                          start: PlanSettings | None = None) -> PlanSettings:
+    """Validate a whole plan mapping (as parsed from TOML) into :class:`PlanSettings`.
+
+    Parameters
+    ----------
+    data
+        Tables keyed by section name.
+    source
+        Name of the plan file for messages.
+    base
+        Folder that relative paths resolve against (the plan file's folder).
+    start
+        Settings to update (default: all defaults).
+    """
+    current = start or PlanSettings()
+    sections: dict[str, Any] = {}
+    for name, table in data.items():
+        if name not in SECTIONS:
+            raise SettingsError(f"unknown table [{name}]", where=source, fix=_suggest(name, list(SECTIONS)))
+        sections[name] = section_from_mapping(SECTIONS[name], table, f"{source} [{name}]", base,
+                                              getattr(current, name))
+    return current.replace(**sections)
+
+
+def parse_override(text: str) -> tuple[str, str, Any]:
+    """Parse a ``--set table.key=value`` override; the value is read as TOML, else as text."""
+    import tomllib
+
+    if "=" not in text or "." not in text.split("=", 1)[0]:
+        raise SettingsError(f"override {text!r} is not table.key=value", where="--set",
+                            fix="write e.g. --set dosing.depth_m=0.05")
+    lhs, rhs = text.split("=", 1)
+    table, key = lhs.strip().split(".", 1)
+    try:
+        value = tomllib.loads(f"v = {rhs.strip()}")["v"]
+    except tomllib.TOMLDecodeError:
+        value = rhs.strip()
+    return table, key, value
+
+
+def describe() -> list[dict[str, Any]]:
+    """Every setting with its table, key, default, unit and meaning (for docs and `--help`)."""
+    rows = []
+    for name, cls in SECTIONS.items():
+        for f in dataclasses.fields(cls):
+            default = f.default if f.default is not dataclasses.MISSING else f.default_factory()  # type: ignore[misc]
+            rows.append({"table": name, "key": f.name, "default": default,
+                         "unit": f.metadata.get("unit", ""), "doc": f.metadata.get("doc", "")})
+    return rows
