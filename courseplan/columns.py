@@ -1,0 +1,96 @@
+"""Declared columns of the zones table: one place for name, unit, meaning and the stage that adds it.
+
+Every stage declares the columns it adds here; ``tests/test_columns.py`` checks each stage's
+output against its declaration, and the GeoPackage's ``units`` table, the map popups and the
+sheets take their units and labels from these declarations.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Column:
+    """One declared column of the zones table."""
+
+    name: str
+    unit: str
+    meaning: str
+    stage: str
+    kind: str = "float"  # float | int | str | bool
+
+
+def _cols(stage: str, *rows: tuple[str, str, str, str]) -> list[Column]:
+    return [Column(n, u, m, stage, k) for n, u, m, k in rows]
+
+
+ZONING = _cols(
+    "zoning",
+    ("zone_id", "", "zone number, 1 … n in course order", "int"),
+    ("course_order", "", "position along the course from the start, 1 … n", "int"),
+    ("section", "", "course section label (distance band from the start or marker name)", "str"),
+    ("exposure_class", "", "sun exposure class from the sun/shade raster", "str"),
+    ("slope_class", "", "slope class (from the DEM; 'n/a' without one)", "str"),
+    ("sun_fraction", "0–1", "mean share of the hold window in direct sun (NaN when the raster holds "
+                            "irradiation only)", "float"),
+    ("irradiation_wh_m2", "Wh/m²", "mean irradiation over the window (NaN when the raster holds a "
+                                    "sun share only)", "float"),
+    ("slope_deg", "°", "mean slope (0 without a DEM)", "float"),
+    ("distance_from_start_m", "m", "mean distance from the start along the course", "float"),
+    ("map_area_m2", "m²", "planimetric (map) area", "float"),
+    ("area_m2", "m²", "snow-surface area used for quantities: map area / cos(slope)", "float"),
+)
+
+CONDITIONS = _cols(
+    "conditions",
+    ("lwc_pct", "% vol", "liquid water content used", "float"),
+    ("wetness", "", "wetness class (Fierz et al. 2009) matching lwc_pct", "str"),
+    ("density_kg_m3", "kg/m³", "snow density used", "float"),
+    ("snow_temp_c", "°C", "snow temperature used", "float"),
+    ("grain", "", "grain class used (Fierz et al. 2009 codes)", "str"),
+    ("snow_source", "", "where the snow state came from: observation, nearby, class-default", "str"),
+    ("snow_source_detail", "", "observation ids, distance and age behind the snow state", "str"),
+    ("obs_distance_m", "m", "distance to the observation used (0 inside, NaN for class default)",
+     "float"),
+    ("obs_age_h", "h", "age of the observation at the window start (NaN for class default)", "float"),
+    ("obs_stale", "", "observation older than the set age before the window", "bool"),
+)
+
+DOSING = _cols(
+    "dosing",
+    ("verdict", "", "what to do in this zone", "str"),
+    ("advice", "", "one line of advice for the verdict", "str"),
+    ("energy_in_mj_m2", "MJ/m²", "net energy income of the surface over the hold window", "float"),
+    ("water_to_remove_kg_m2", "kg/m²", "free water to refreeze plus melt to offset", "float"),
+    ("dose_g_m2", "g/m²", "product dose, P50", "float"),
+    ("dose_p90_g_m2", "g/m²", "product dose, P90", "float"),
+    ("passes", "", "number of passes", "int"),
+    ("pass_temp_c", "°C", "closed-layer temperature after one pass in the mixing layer", "float"),
+    ("product_kg", "kg", "product mass, P50 (dose × surface area)", "float"),
+    ("product_p90_kg", "kg", "product mass, P90", "float"),
+    ("nitrogen_kg", "kg", "nitrogen put on the snow, P50", "float"),
+    ("chloride_kg", "kg", "chloride put on the snow, P50", "float"),
+)
+
+LOGISTICS = _cols(
+    "logistics",
+    ("crew", "", "crew number (0: not treated)", "int"),
+    ("bags", "", "bags for this zone (whole bags, P90 with margin)", "int"),
+    ("work_min", "min", "spreading and carrying time", "float"),
+    ("handfuls_m2", "1/m²", "handfuls per square metre for hand spreading (estimate)", "float"),
+)
+
+ALL: list[Column] = ZONING + CONDITIONS + DOSING + LOGISTICS
+BY_NAME: dict[str, Column] = {c.name: c for c in ALL}
+
+
+def declared(stage: str) -> list[Column]:
+    """Columns a stage declares it adds."""
+    return [c for c in ALL if c.stage == stage]
+
+
+def unit(name: str) -> str:
+    """Unit of a declared column ('' when dimensionless or unknown)."""
+    c = BY_NAME.get(name)
+    return c.unit if c else ""
