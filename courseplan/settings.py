@@ -173,6 +173,14 @@ class Logistics:
                           lo=5.0, hi=500.0)
     wait_min: float = _f(50.0, "time the agent needs before skiing (guidance: 45–60 min)", unit="min",
                          lo=0.0, hi=600.0)
+    first_start: str | None = _f(None, "first race start, HH:MM local time; crews finish their first "
+                                       "pass wait_min before it (default: window start + the longest "
+                                       "crew's work before the race + wait_min)")
+    big_bag_kg: float | None = _f(None, "big-bag size, overriding the catalogue", unit="kg", lo=50.0,
+                                  hi=5000.0)
+    big_bag_from_kg: float = _f(1000.0, "order in big bags (rest in bags) from this total; crews fill "
+                                        "their bags from them at the depots", unit="kg", lo=0.0)
+    bags_per_pallet: int | None = _f(None, "bags per pallet, overriding the catalogue", lo=1, hi=500)
 
 
 @dataclass(frozen=True)
