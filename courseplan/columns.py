@@ -81,6 +81,30 @@ LOGISTICS = _cols(
     ("handfuls_m2", "1/m²", "handfuls per square metre for hand spreading (estimate)", "float"),
 )
 
+CREW_LAYER = _cols(
+    "logistics",
+    ("crew", "", "crew number, 1 … n in course order", "int"),
+    ("label", "", "crew name on the sheets", "str"),
+    ("zone_ids", "", "the crew's zones in walking (course) order, comma-separated", "str"),
+    ("first_course_order", "", "course order of the crew's first zone", "int"),
+    ("last_course_order", "", "course order of the crew's last zone", "int"),
+    ("n_zones", "", "number of zones", "int"),
+    ("area_m2", "m²", "snow-surface area of the crew's zones", "float"),
+    ("product_kg", "kg", "product mass, P50", "float"),
+    ("product_p90_kg", "kg", "product mass, P90", "float"),
+    ("bags", "", "bags dropped at the crew's depot", "int"),
+    ("work_min", "min", "spreading (all passes) and carrying time", "float"),
+    ("pre_race_min", "min", "work before the first start (first pass and passes that find no break)",
+     "float"),
+    ("passes", "", "most passes any of the crew's zones needs", "int"),
+    ("depot_x", "m", "depot (where the bags are dropped), x in the plan's CRS", "float"),
+    ("depot_y", "m", "depot, y in the plan's CRS", "float"),
+    ("start", "HH:MM", "when the crew starts, local time", "str"),
+    ("first_pass_done", "HH:MM", "when the first pass must be done (first start − wait)", "str"),
+    ("second_pass", "HH:MM", "when the second pass is due (empty for one pass)", "str"),
+)
+"""Columns of the ``crews`` layer (one row per crew; not part of the zones table)."""
+
 ALL: list[Column] = ZONING + CONDITIONS + DOSING + LOGISTICS
 BY_NAME: dict[str, Column] = {c.name: c for c in ALL}
 
