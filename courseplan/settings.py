@@ -141,6 +141,8 @@ class Dosing:
     purity: float | None = _f(None, "product purity, overriding the catalogue", lo=0.05, hi=1.0)
     samples: int = _f(200, "samples for P50/P90", lo=1, hi=100000)
     seed: int = _f(20261202, "random seed of the sampling (same seed, same numbers)", lo=0)
+    calibrated: str | None = _f(None, "date and place of the test patch that brine_exit_temp_c or "
+                                      "refreeze_share was fitted on (docs/model.md, calibration)")
 
 
 @dataclass(frozen=True)
@@ -153,6 +155,8 @@ class Forecast:
     cloud_fraction: float = _f(0.2, "cloud cover", lo=0.0, hi=1.0)
     air_temp_spread_k: float = _f(1.5, "forecast spread (one standard deviation) of air temperature",
                                   unit="K", lo=0.0, hi=15.0)
+    pressure_hpa: float = _f(850.0, "air pressure at the course (about 850 hPa at 1500 m)", unit="hPa",
+                             lo=400.0, hi=1100.0)
 
 
 @dataclass(frozen=True)
