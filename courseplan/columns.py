@@ -71,6 +71,18 @@ DOSING = _cols(
     ("product_p90_kg", "kg", "product mass, P90", "float"),
     ("nitrogen_kg", "kg", "nitrogen put on the snow, P50", "float"),
     ("chloride_kg", "kg", "chloride put on the snow, P50", "float"),
+    ("energy_in_p90_mj_m2", "MJ/m²", "net energy income over the hold window, P90", "float"),
+    ("dose_per_pass_g_m2", "g/m²", "product per pass (P50 dose / passes)", "float"),
+    ("max_pass_g_m2", "g/m²", "largest product dose one pass may carry before the mixing layer turns "
+                              "to slush (inf: no limit)", "float"),
+    ("pass_times", "HH:MM", "when to spread each pass, local time, '; '-separated", "str"),
+    ("refreeze_ratio_kg_kg", "kg/kg", "free water removed per kg of salt at the brine exit temperature",
+     "float"),
+    ("brine_exit_temp_c", "°C", "brine exit temperature T_b used", "float"),
+    ("refreeze_share", "", "share of the free water that must refreeze (k_f) used", "float"),
+    ("lwc_sampled", "", "liquid water content sampled inside its wetness class for P50/P90", "bool"),
+    ("weather_source", "", "where the weather came from: plan constants or a forecast file", "str"),
+    ("dose_inputs", "", "the inputs the dose used and where each came from", "str"),
 )
 
 LOGISTICS = _cols(
