@@ -112,7 +112,8 @@ CREW_LAYER = _cols(
     ("depot_x", "m", "depot (where the bags are dropped), x in the plan's CRS", "float"),
     ("depot_y", "m", "depot, y in the plan's CRS", "float"),
     ("start", "HH:MM", "when the crew starts, local time", "str"),
-    ("first_pass_done", "HH:MM", "when the first pass must be done (first start − wait)", "str"),
+    ("done_by", "HH:MM", "when the crew's work before the race must be done (first start − wait)",
+     "str"),
     ("second_pass", "HH:MM", "when the second pass is due (empty for one pass)", "str"),
 )
 """Columns of the ``crews`` layer (one row per crew; not part of the zones table)."""

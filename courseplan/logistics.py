@@ -180,8 +180,9 @@ class LogisticsResult:
                 "depot_x": _r(row.depot_x, 1),
                 "depot_y": _r(row.depot_y, 1),
                 "start": row.start,
-                "first_pass_done": row.first_pass_done,
+                "done_by": row.done_by,
                 "second_pass": row.second_pass if isinstance(row.second_pass, str) else None,
+                "notes": [n for n in self.notes if n.startswith(f"Crew {int(row.crew)} ")],
                 "zones": [{
                     "zone_id": int(z.zone_id),
                     "course_order": int(z.course_order),
@@ -201,6 +202,7 @@ class LogisticsResult:
                 "crews": {"count": len(crews), "crs": None if crs is None else crs.to_string(),
                           "first_start": self.first_start, "wait_min": _r(self.wait_min, 0),
                           "handful_g": _r(self.handful_g, 0), "notes": list(self.notes),
+                          "plan_notes": [n for n in self.notes if not n.startswith("Crew ")],
                           "crews": crews}}
 
 
@@ -528,13 +530,13 @@ def plan_logistics(zones: Any, settings: PlanSettings, agent: Any) -> LogisticsR
             "passes": crew_passes,
             "depot_x": float(depot.x), "depot_y": float(depot.y),
             "start": _hhmm(start),
-            "first_pass_done": _hhmm(done_by),
+            "done_by": _hhmm(done_by),
             "second_pass": second,
             "geometry": geom,
         })
     cols = ["crew", "label", "zone_ids", "first_course_order", "last_course_order", "n_zones", "area_m2",
             "product_kg", "product_p90_kg", "bags", "work_min", "pre_race_min", "passes", "depot_x",
-            "depot_y", "start", "first_pass_done", "second_pass", "geometry"]
+            "depot_y", "start", "done_by", "second_pass", "geometry"]
     crews = gpd.GeoDataFrame(rows, columns=cols, geometry="geometry", crs=zones.crs)
 
     # the order

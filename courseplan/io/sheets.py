@@ -1,0 +1,522 @@
+"""Printable sheets: the order sheet for the logistics lead and one crew sheet per crew (PDF).
+
+Built with reportlab (BSD licence, pure pip).  Every figure printed comes from
+:meth:`courseplan.logistics.LogisticsResult.summary`, formatted by :func:`num`, so the sheets and
+``summary.json`` agree.  The maps are vector graphics that read in black and white: the crew's zones
+are hatched and outlined in black, other treated zones are light grey, the course outline is a black
+line, and every zone carries its number.  Files are written to a temporary name in the target folder
+and moved into place, so an interrupted run leaves no half-written sheet.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+from xml.sax.saxutils import escape
+
+from ..errors import OutputError
+
+PAGE_MARGIN_PT = 36.0  # 12.7 mm, inside the printable area of common office printers
+
+
+def num(value: float | int | None, nd: int = 1) -> str:
+    """Figure as printed on the sheets: ``nd`` decimals, no thousands separator; '–' for None."""
+    if value is None:
+        return "–"
+    return f"{float(value):.{nd}f}"
+
+
+# ---------------------------------------------------------------- public API
+
+
+def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str, plan_date: str | None,
+                    agent_label: str, cautions: list[str] | tuple[str, ...]) -> Path:
+    """Write the order sheet for the logistics lead.
+
+    Parameters
+    ----------
+    path
+        Target file (``order.pdf``); replaced atomically.
+    result
+        :class:`courseplan.logistics.LogisticsResult`.
+    plan_name, plan_date
+        Printed in the header and footer of every page.
+    agent_label
+        Agent name as printed.
+    cautions
+        General cautions (:func:`courseplan.cautions.cautions_for`).
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
+    from reportlab.lib.units import mm
+    from reportlab.platypus import Paragraph, Spacer
+
+    s = result.summary()
+    o, cr = s["order"], s["crews"]
+    st = _styles()
+    story: list[Any] = [
+        Paragraph(f"Order sheet – {escape(plan_name)}", st["title"]),
+        Paragraph(f"{escape(agent_label)} · race day {escape(plan_date or 'not set')} · "
+                  "for the logistics lead", st["sub"]),
+        Spacer(1, 3 * mm),
+        Paragraph("Order", st["h2"]),
+    ]
+    rows = [
+        ["Product mass P50 (planned dose)", f"{num(o['p50_kg'])} kg"],
+        ["Product mass P90", f"{num(o['p90_kg'])} kg"],
+        ["Safety margin on P90", f"{num(o['margin_pct'])} %"],
+        ["Needed: P90 + margin", f"{num(o['needed_kg'])} kg"],
+        ["Bags handed out to crews (whole bags per zone)",
+         f"{o['bags_handed_out']} × {num(o['bag_kg'])} kg = {num(o['handed_out_kg'])} kg"],
+    ]
+    for p in o["packages"]:
+        rows.append([f"Order: {p['kind']}s of {num(p['size_kg'])} kg",
+                     f"{p['count']} × {num(p['size_kg'])} kg = {num(p['kg'])} kg"])
+    rows += [
+        ["Total ordered", f"{num(o['order_kg'])} kg = {num(o['tonnes'], 3)} t"],
+        ["Pallets (bags per pallet; one place per big bag)",
+         "unknown: set [logistics] bags_per_pallet" if o["pallets"] is None else str(o["pallets"])],
+        ["Cost", "no price given" if o["cost"] is None else
+         f"{num(o['cost'], 2)} {escape(o['currency'])} ({num(o['price_per_kg'], 2)} {escape(o['currency'])}/kg)"],
+    ]
+    story.append(_kv_table(rows, st))
+    if o["big_bags"]:
+        story.append(Paragraph("Big bags go to depots a machine can reach; crews fill their "
+                               f"{num(o['bag_kg'])} kg bags from them there.", st["small"]))
+    story += [Spacer(1, 3 * mm), Paragraph("What the plan puts on the hill", st["h2"]),
+              _kv_table([["Nitrogen", f"{num(o['nitrogen_kg'])} kg (P50), {num(o['nitrogen_p90_kg'])} kg (P90)"],
+                         ["Chloride", f"{num(o['chloride_kg'])} kg (P50), {num(o['chloride_p90_kg'])} kg (P90)"]],
+                        st),
+              Spacer(1, 3 * mm), Paragraph("Storage", st["h2"])]
+    story += [Paragraph("• " + escape(c), st["body"]) for c in o["storage_cautions"]]
+    story += [Spacer(1, 3 * mm), Paragraph("Depots and crews", st["h2"]),
+              Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot are "
+                        "whole bags per zone (P90 + margin). Every crew finishes its first pass "
+                        f"{num(cr['wait_min'], 0)} min before the first start at {cr['first_start']}.",
+                        st["small"])]
+    head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
+    body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
+             num(c["bags"] * c["bag_kg"]), c["start"], c["second_pass"] or "–"] for c in cr["crews"]]
+    story.append(_grid_table(head, body, st, total=None,
+                             widths=[18, 38, 22, 22, 12, 20, 14, 16]))
+    story += _notes_and_cautions(cr["notes"], cautions, st)
+    _build(path, story, plan_name, plan_date, "Order sheet")
+    return Path(path)
+
+
+def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any, *, plan_name: str,
+                    plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...]) -> Path:
+    """Write the crew sheets: one page per crew.
+
+    Each page: a map of the crew's zones on the course outline (with zone numbers and the depot), an
+    overview of the whole course, the zones table in walking order (zone, section, surface area, dose
+    P50/P90, passes, bags, handfuls, advice), totals, timing, the hand-spreading guide and the cautions.
+
+    Parameters
+    ----------
+    path
+        Target file (``crews.pdf``); replaced atomically.
+    result
+        :class:`courseplan.logistics.LogisticsResult`.
+    course_geom
+        Course outline (shapely polygon in the zones' CRS); None draws the zones' outline instead.
+    plan_name, plan_date, agent_label, cautions
+        As for :func:`write_order_pdf`.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+    """
+    import shapely
+    from reportlab.lib.units import mm
+    from reportlab.platypus import KeepInFrame, PageBreak, Paragraph, Spacer, Table, TableStyle
+
+    s = result.summary()
+    cr = s["crews"]
+    st = _styles()
+    zones = result.zones
+    if course_geom is None:
+        course_geom = shapely.union_all(zones.geometry.to_numpy())
+    treated_geoms = zones.loc[zones["crew"] > 0]
+    frame_w, frame_h = _frame_size()
+    story: list[Any] = []
+    if not cr["crews"]:
+        story.append(Paragraph(f"Crew sheets – {escape(plan_name)}", st["title"]))
+        story.append(Paragraph("No zone needs treatment: no crews.", st["body"]))
+        story += _notes_and_cautions(cr["notes"], cautions, st)
+    for n, c in enumerate(cr["crews"]):
+        mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
+        depot = (c["depot_x"], c["depot_y"])
+        map_w, map_h = frame_w * 0.64, 100 * mm
+        detail, view = _map_drawing(course_geom, treated_geoms, mine, depot, map_w, map_h, detail=True)
+        over, _ = _map_drawing(course_geom, treated_geoms, mine, depot, frame_w * 0.34, 40 * mm,
+                               detail=False, view_of=view)
+        key = _kv_table([
+            ["Start", c["start"]],
+            ["Pre-race work done by", c["done_by"]],
+            ["First race start", cr["first_start"]],
+            ["Second pass", c["second_pass"] or "none"],
+            ["Depot x / y", f"{num(c['depot_x'])} / {num(c['depot_y'])}"],
+            ["Bags at depot", f"{c['bags']} × {num(c['bag_kg'])} kg"],
+            ["Work (all passes)", f"{num(c['work_min'], 0)} min"],
+        ], st, small=True, widths=(0.44, 0.56), total_w=frame_w * 0.34)
+        side = Table([[over], [Spacer(1, 2 * mm)], [key]], colWidths=[frame_w * 0.34])
+        side.setStyle(TableStyle([("LEFTPADDING", (0, 0), (-1, -1), 0), ("RIGHTPADDING", (0, 0), (-1, -1), 0),
+                                  ("TOPPADDING", (0, 0), (-1, -1), 0), ("BOTTOMPADDING", (0, 0), (-1, -1), 0),
+                                  ("VALIGN", (0, 0), (-1, -1), "TOP")]))
+        top = Table([[detail, side]], colWidths=[frame_w * 0.66, frame_w * 0.34])
+        top.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("LEFTPADDING", (0, 0), (-1, -1), 0),
+                                 ("RIGHTPADDING", (0, 0), (-1, -1), 0)]))
+        head = ["Zone", "Section", "Area m²", "Dose P50 g/m²", "P90 g/m²", "Passes", "Bags",
+                "Handfuls /m² per pass", "Advice"]
+        body = [[str(z["zone_id"]), escape(z["section"]), num(z["area_m2"], 0), num(z["dose_g_m2"]),
+                 num(z["dose_p90_g_m2"]), str(z["passes"]), str(z["bags"]), num(z["handfuls_m2"], 2),
+                 Paragraph(escape(z["advice"]), st["cell"])] for z in c["zones"]]
+        total = ["Total", f"{len(c['zones'])} zones", num(c["area_m2"], 0), f"{num(c['product_kg'])} kg",
+                 f"{num(c['product_p90_kg'])} kg", str(c["passes"]) + " max", str(c["bags"]), "", ""]
+        page = [
+            Paragraph(f"{escape(c['label'])} – {escape(plan_name)}", st["title"]),
+            Paragraph(f"{escape(agent_label)} · race day {escape(plan_date or 'not set')} · zones in walking "
+                      f"order (course order {c['first_course_order']}–{c['last_course_order']})", st["sub"]),
+            Spacer(1, 2 * mm), top, Spacer(1, 2 * mm),
+            _grid_table(head, body, st, total=total, widths=[11, 18, 15, 17, 15, 14, 12, 20, 56]),
+            Spacer(1, 2 * mm),
+            Paragraph(f"<b>Hand spreading (an estimate):</b> one handful is about {num(cr['handful_g'], 0)} g; "
+                      "throw the handfuls per square metre in the table on each pass. Spread the P50 dose "
+                      "evenly over the whole width, turn apexes included, with no clumps; the bags hold P90 "
+                      "plus margin, so some may come back.", st["body"]),
+            Paragraph(f"<b>Timing:</b> start {c['start']}; work before the race done by {c['done_by']} "
+                      f"({num(cr['wait_min'], 0)} min before the first start at {cr['first_start']}, for the "
+                      "agent to act)." + (f" Second pass starts at {c['second_pass']}." if c["second_pass"]
+                                          else ""), st["body"]),
+        ]
+        page += _notes_and_cautions(cr["plan_notes"] + c["notes"], cautions, st)
+        story.append(KeepInFrame(frame_w, frame_h, page, mode="shrink"))
+        if n < len(cr["crews"]) - 1:
+            story.append(PageBreak())
+    _build(path, story, plan_name, plan_date, "Crew sheets")
+    return Path(path)
+
+
+# ---------------------------------------------------------------- pieces
+
+
+def _styles() -> dict[str, Any]:
+    from reportlab.lib.styles import ParagraphStyle
+
+    base = ParagraphStyle("body", fontName="Helvetica", fontSize=9, leading=11.5)
+    return {
+        "title": ParagraphStyle("title", parent=base, fontName="Helvetica-Bold", fontSize=15, leading=18),
+        "sub": ParagraphStyle("sub", parent=base, fontSize=9.5, leading=12),
+        "h2": ParagraphStyle("h2", parent=base, fontName="Helvetica-Bold", fontSize=11, leading=14,
+                             spaceBefore=2, spaceAfter=2),
+        "body": base,
+        "small": ParagraphStyle("small", parent=base, fontSize=8, leading=10),
+        "cell": ParagraphStyle("cell", parent=base, fontSize=8, leading=9.5),
+        "caution": ParagraphStyle("caution", parent=base, fontSize=7.5, leading=9.2, leftIndent=8,
+                                  firstLineIndent=-8),
+    }
+
+
+def _frame_size() -> tuple[float, float]:
+    from reportlab.lib.pagesizes import A4
+
+    w, h = A4
+    return w - 2 * PAGE_MARGIN_PT, h - 2 * PAGE_MARGIN_PT - 14.0  # room for the footer
+
+
+def _zone_span(ids: list[int]) -> str:
+    if not ids:
+        return "–"
+    return str(ids[0]) if len(ids) == 1 else f"{ids[0]}–{ids[-1]} ({len(ids)})"
+
+
+def _kv_table(rows: list[list[str]], st: dict[str, Any], *, small: bool = False,
+              widths: tuple[float, float] = (0.55, 0.45), total_w: float | None = None) -> Any:
+    from reportlab.lib import colors
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    total_w = total_w or _frame_size()[0]
+    style = st["cell"] if small else st["body"]
+    data = [[Paragraph(escape(k), style), Paragraph(escape(v), style)] for k, v in rows]
+    t = Table(data, colWidths=[total_w * widths[0], total_w * widths[1]])
+    t.setStyle(TableStyle([
+        ("GRID", (0, 0), (-1, -1), 0.4, colors.black),
+        ("BACKGROUND", (0, 0), (0, -1), colors.Color(0.9, 0.9, 0.9)),
+        ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5), ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
+    ]))
+    return t
+
+
+def _grid_table(head: list[str], body: list[list[Any]], st: dict[str, Any], *, total: list[str] | None,
+                widths: list[float]) -> Any:
+    from reportlab.lib import colors
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    frame_w = _frame_size()[0]
+    scale = frame_w / sum(widths)
+    hstyle = st["cell"].clone("head", fontName="Helvetica-Bold")
+    data: list[list[Any]] = [[Paragraph(escape(h), hstyle) for h in head]]
+    data += [[Paragraph(c, st["cell"]) if isinstance(c, str) else c for c in row] for row in body]
+    if total is not None:
+        data.append([Paragraph(f"<b>{c}</b>", st["cell"]) for c in total])
+    t = Table(data, colWidths=[w * scale for w in widths], repeatRows=1)
+    cmds = [
+        ("GRID", (0, 0), (-1, -1), 0.4, colors.black),
+        ("BACKGROUND", (0, 0), (-1, 0), colors.Color(0.82, 0.82, 0.82)),
+        ("VALIGN", (0, 0), (-1, -1), "MIDDLE"),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5), ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
+    ]
+    for r in range(2, len(data) - (1 if total is not None else 0), 2):  # zebra rows help on grey prints
+        cmds.append(("BACKGROUND", (0, r), (-1, r), colors.Color(0.95, 0.95, 0.95)))
+    if total is not None:
+        cmds.append(("LINEABOVE", (0, -1), (-1, -1), 1.2, colors.black))
+    t.setStyle(TableStyle(cmds))
+    return t
+
+
+def _notes_and_cautions(notes: list[str], cautions: list[str] | tuple[str, ...], st: dict[str, Any]
+                        ) -> list[Any]:
+    from reportlab.lib.units import mm
+    from reportlab.platypus import Paragraph, Spacer
+
+    out: list[Any] = []
+    if notes:
+        out.append(Spacer(1, 2 * mm))
+        out += [Paragraph("<b>Note:</b> " + escape(n), st["small"]) for n in notes]
+    out += [Spacer(1, 2 * mm), Paragraph("<b>Cautions</b>", st["small"])]
+    out += [Paragraph("• " + escape(c), st["caution"]) for c in cautions]
+    return out
+
+
+def _build(path: str | os.PathLike[str], story: list[Any], plan_name: str, plan_date: str | None,
+           kind: str) -> None:
+    from reportlab.lib.pagesizes import A4
+    from reportlab.platypus import SimpleDocTemplate
+
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise OutputError(f"folder {folder} does not exist", where=str(target),
+                          fix="create the output folder first")
+
+    def footer(canvas: Any, doc: Any) -> None:
+        canvas.saveState()
+        canvas.setFont("Helvetica", 7.5)
+        text = f"{plan_name} · {plan_date or 'date not set'} · {kind} · page {doc.page}"
+        canvas.drawString(PAGE_MARGIN_PT, PAGE_MARGIN_PT * 0.55, text)
+        canvas.drawRightString(A4[0] - PAGE_MARGIN_PT, PAGE_MARGIN_PT * 0.55,
+                               "Planning figures only – see the cautions")
+        canvas.restoreState()
+
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+    os.close(fd)
+    try:
+        doc = SimpleDocTemplate(tmp, pagesize=A4, leftMargin=PAGE_MARGIN_PT, rightMargin=PAGE_MARGIN_PT,
+                                topMargin=PAGE_MARGIN_PT, bottomMargin=PAGE_MARGIN_PT + 14.0,
+                                title=f"{kind} – {plan_name}", author="courseplan")
+        doc.build(story, onFirstPage=footer, onLaterPages=footer)
+        os.replace(tmp, target)
+    except OSError as e:
+        raise OutputError(f"cannot write {target}: {e.strerror or e}", where=str(target),
+                          fix="check the folder is writable and the disk has room") from None
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+
+
+# ---------------------------------------------------------------- maps
+
+
+def _map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float], width: float,
+                 height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None
+                 ) -> tuple[Any, tuple[float, float, float, float]]:
+    """A vector map: course outline, treated zones (grey), this crew's zones (hatched, numbered), depot."""
+    import shapely
+    from reportlab.graphics.shapes import Drawing, Group, Rect, String
+    from reportlab.lib import colors
+
+    pad = 6.0
+    mine_u = shapely.union_all(mine.geometry.to_numpy())
+    focus = mine_u if detail else course
+    x0, y0, x1, y1 = focus.bounds
+    if detail:
+        dx, dy = x1 - x0, y1 - y0
+        grow = 0.12 * max(dx, dy, 1.0)
+        x0, y0, x1, y1 = x0 - grow, y0 - grow, x1 + grow, y1 + grow
+    # keep the aspect: widen the view to the drawing's shape
+    iw, ih = width - 2 * pad, height - 2 * pad
+    dx, dy = max(x1 - x0, 1e-6), max(y1 - y0, 1e-6)
+    scale = min(iw / dx, ih / dy)
+    cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
+    vx0, vx1 = cx - iw / scale / 2, cx + iw / scale / 2
+    vy0, vy1 = cy - ih / scale / 2, cy + ih / scale / 2
+
+    view_box = shapely.box(pad, pad, width - pad, height - pad)
+
+    def tf(g: Any) -> Any:
+        # to page points first, then repair (slivers can self-cross after scaling) and clip
+        g = shapely.transform(g, lambda xy: (xy - [vx0, vy0]) * scale + pad)
+        return shapely.intersection(shapely.make_valid(g), view_box)
+
+    d = Drawing(width, height)
+    d.add(Rect(0, 0, width, height, fillColor=colors.white, strokeColor=colors.black, strokeWidth=0.6))
+    g = Group()
+    _add_polys(g, tf(course), fill=colors.white, stroke=colors.black, width=0.9)
+    others = treated.loc[treated["crew"] != (mine["crew"].iloc[0] if len(mine) else -1)]
+    for geom in others.geometry:
+        _add_polys(g, tf(geom), fill=colors.Color(0.86, 0.86, 0.86), stroke=colors.Color(0.45, 0.45, 0.45),
+                   width=0.3)
+    for geom in mine.geometry:
+        t = tf(geom)
+        _add_polys(g, t, fill=colors.Color(0.72, 0.72, 0.72) if not detail else colors.Color(0.8, 0.8, 0.8),
+                   stroke=colors.black, width=1.1 if detail else 0.5)
+        if detail:
+            _add_hatch(g, t, spacing=5.0)
+    if detail:
+        px, py = (depot[0] - vx0) * scale + pad, (depot[1] - vy0) * scale + pad
+        taken = [shapely.box(px - 6, py - 5, px + 37, py + 6)]  # the depot symbol and its word
+        frame = shapely.box(1, 1, width - 1, height - 1)
+        for z in mine.sort_values("course_order").itertuples(index=False):
+            t = tf(z.geometry)
+            if t.is_empty:
+                continue
+            label = str(int(z.zone_id))
+            _add_label(g, t, label, taken, frame)
+        # depot: a black triangle with a label, drawn over everything
+        from reportlab.graphics.shapes import Polygon
+        g.add(Polygon([px - 5, py - 4, px + 5, py - 4, px, py + 5], fillColor=colors.black,
+                      strokeColor=colors.white, strokeWidth=0.6))
+        g.add(Rect(px + 6, py - 4, 30, 9, fillColor=colors.white, strokeColor=None))
+        g.add(String(px + 7, py - 2, "Depot", fontName="Helvetica-Bold", fontSize=7.5))
+        _add_scale_bar(g, scale, pad)
+    elif view_of is not None:
+        from reportlab.graphics.shapes import Rect as R
+        a, b, c2, e = view_of
+        r = R((a - vx0) * scale + pad, (b - vy0) * scale + pad, (c2 - a) * scale, (e - b) * scale,
+              fillColor=None, strokeColor=colors.black, strokeWidth=0.8, strokeDashArray=[2, 2])
+        g.add(r)
+        g.add(String(pad, height - pad - 7, "Whole course", fontName="Helvetica", fontSize=7))
+    # north arrow (grid north of the plan's CRS)
+    nx, ny = width - pad - 8, height - pad - 18
+    from reportlab.graphics.shapes import Polygon
+    g.add(Polygon([nx - 4, ny, nx + 4, ny, nx, ny + 12], fillColor=colors.black, strokeColor=None))
+    g.add(String(nx, ny - 8, "N", fontName="Helvetica-Bold", fontSize=7, textAnchor="middle"))
+    d.add(g)
+    return d, (vx0, vy0, vx1, vy1)
+
+
+def _add_label(g: Any, geom: Any, label: str, taken: list[Any], frame: Any) -> None:
+    """Put a boxed zone number inside its zone where it fits, else beside it with a leader line.
+
+    ``taken`` holds the boxes already used (updated); ``frame`` is the drawing area.
+    """
+    import math
+
+    import numpy as np
+    import shapely
+    from reportlab.graphics.shapes import Line, Rect, String
+    from reportlab.lib import colors
+
+    w, h = 4.9 * len(label) + 4, 10.0
+
+    def box_at(x: float, y: float) -> Any:
+        return shapely.box(x - w / 2, y - h / 2, x + w / 2, y + h / 2)
+
+    def free(b: Any) -> bool:
+        return frame.contains(b) and not any(b.intersects(t.buffer(1.0)) for t in taken)
+
+    anchor = geom.representative_point()
+    cands: list[tuple[float, float, bool]] = [(anchor.x, anchor.y, False)]
+    x0, y0, x1, y1 = geom.bounds
+    gx, gy = np.meshgrid(np.arange(x0, x1, 4.0), np.arange(y0, y1, 4.0))
+    pts = shapely.points(gx.ravel(), gy.ravel())
+    inside = pts[shapely.contains(geom, pts)] if len(pts) else pts
+    inside = sorted(inside, key=lambda p: p.distance(anchor))
+    cands += [(p.x, p.y, False) for p in inside]
+    for r in (16.0, 24.0, 34.0, 46.0, 60.0):
+        for k in range(12):
+            ang = math.pi * k / 6
+            cands.append((anchor.x + r * math.cos(ang), anchor.y + r * math.sin(ang), True))
+    x, y, leader = cands[0]
+    for cx, cy, ld in cands:
+        if free(box_at(cx, cy)):
+            x, y, leader = cx, cy, ld
+            break
+    b = box_at(x, y)
+    taken.append(b)
+    if leader:
+        g.add(Line(anchor.x, anchor.y, x, y, strokeColor=colors.black, strokeWidth=0.6))
+    g.add(Rect(x - w / 2, y - h / 2, w, h, fillColor=colors.white, strokeColor=colors.black, strokeWidth=0.5))
+    g.add(String(x, y - 2.9, label, fontName="Helvetica-Bold", fontSize=8, textAnchor="middle"))
+
+
+def _rings(geom: Any) -> list[Any]:
+    polys = []
+    if geom.is_empty:
+        return polys
+    if geom.geom_type == "Polygon":
+        polys = [geom]
+    elif hasattr(geom, "geoms"):
+        for part in geom.geoms:
+            polys += _rings(part)
+    return polys
+
+
+def _add_polys(g: Any, geom: Any, *, fill: Any, stroke: Any, width: float) -> None:
+    from reportlab.graphics.shapes import FILL_EVEN_ODD, Path
+
+    for poly in _rings(geom):
+        path = Path(fillColor=fill, strokeColor=stroke, strokeWidth=width, fillMode=FILL_EVEN_ODD)
+        for ring in [poly.exterior, *poly.interiors]:
+            xy = list(ring.coords)
+            path.moveTo(*xy[0])
+            for p in xy[1:]:
+                path.lineTo(*p)
+            path.closePath()
+        g.add(path)
+
+
+def _add_hatch(g: Any, geom: Any, spacing: float) -> None:
+    """Diagonal hatching clipped to the polygon (reads without colour)."""
+    import numpy as np
+    import shapely
+    from reportlab.graphics.shapes import Line
+    from reportlab.lib import colors
+
+    if geom.is_empty:
+        return
+    x0, y0, x1, y1 = geom.bounds
+    span = (x1 - x0) + (y1 - y0)
+    offsets = np.arange(-span, span, spacing)
+    lines = shapely.linestrings([[[x0 + o, y0], [x0 + o + span, y0 + span]] for o in offsets])
+    for seg in shapely.intersection(lines, geom):
+        for part in (seg.geoms if hasattr(seg, "geoms") else [seg]):
+            if part.geom_type != "LineString" or part.is_empty:
+                continue
+            (a, b), (c, d) = part.coords[0], part.coords[-1]
+            g.add(Line(a, b, c, d, strokeColor=colors.black, strokeWidth=0.35))
+
+
+def _add_scale_bar(g: Any, scale: float, pad: float) -> None:
+    import math
+
+    from reportlab.graphics.shapes import Rect, String
+    from reportlab.lib import colors
+
+    target_m = 60.0 / scale  # about 60 pt long
+    exp = 10 ** math.floor(math.log10(target_m))
+    length_m = max(s * exp for s in (1, 2, 5) if s * exp <= target_m) if target_m >= 1 else target_m
+    w = length_m * scale
+    x, y = pad + 4, pad + 4
+    g.add(Rect(x - 2, y - 2, w + 4, 16, fillColor=colors.white, strokeColor=None))
+    g.add(Rect(x, y, w / 2, 3, fillColor=colors.black, strokeColor=colors.black, strokeWidth=0.5))
+    g.add(Rect(x + w / 2, y, w / 2, 3, fillColor=colors.white, strokeColor=colors.black, strokeWidth=0.5))
+    g.add(String(x, y + 5, f"{length_m:g} m", fontName="Helvetica", fontSize=7))
