@@ -60,7 +60,7 @@ def zone_energy_j_m2(irradiation_wh_m2, weather: Weather, albedo: float, temp_of
 def _pass_times(step_e: np.ndarray, weather: Weather, passes: np.ndarray) -> list[str]:
     """Spread the passes over the window in proportion to the cumulative energy (nominal state)."""
     edges = list(weather.hour_start) + [weather.hour_end[-1]]
-    t_edges = np.array([t.value for t in edges], dtype=float)
+    t_edges = np.array([pd.Timestamp(t).as_unit("ns").value for t in edges], dtype=float)
     out = []
     for e_z, n in zip(step_e, passes, strict=True):
         n = int(n)

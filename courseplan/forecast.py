@@ -222,16 +222,16 @@ def weather_from_table(df: pd.DataFrame, settings, clear_sky_profile: Any = None
     times = times.tz_localize(tz) if times.tz is None else times.tz_convert(tz)
     date = None if settings.plan.date else str(times[0].date())
     start, end = window_steps(settings, date)
-    t_sec = times.asi8 / 1e9
+    t_sec = times.as_unit("ns").asi8 / 1e9
     order = np.argsort(t_sec)
     t_sec = t_sec[order]
-    w0, w1 = start[0].value / 1e9, end[-1].value / 1e9
+    w0, w1 = start[0].as_unit("ns").value / 1e9, end[-1].as_unit("ns").value / 1e9
     gap = max_gap_h * 3600.0
     if t_sec[0] > w0 + gap or t_sec[-1] < w1 - gap:
         raise InputError(f"the forecast covers {times.min():%Y-%m-%d %H:%M}–{times.max():%H:%M} but the window "
                          f"is {start[0]:%Y-%m-%d %H:%M}–{end[-1]:%H:%M} ({tz})", where=source,
                          fix="give forecast rows for the whole hold window and the race date")
-    mid = (start.asi8 / 1e9 + end.asi8 / 1e9) / 2.0
+    mid = (start.as_unit("ns").asi8 / 1e9 + end.as_unit("ns").asi8 / 1e9) / 2.0
     vals = {}
     for c in FORECAST_COLUMNS[1:]:
         y = np.asarray(df[c], dtype=float)[order]
