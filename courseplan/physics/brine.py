@@ -68,8 +68,9 @@ __all__ = [
 
 N_GRID = 4097
 """Nodes of the uniform lookup grids in w and in T (per agent)."""
-NEWTON_STEPS = 10
-"""Fixed number of bracketed Newton steps of the equilibrium solvers."""
+NEWTON_STEPS = 5
+"""Fixed number of bracketed Newton steps of the equilibrium solvers (converged to < 1e-5 of L_f·s
+in 4 steps over the tested ranges; see tests/test_brine.py)."""
 
 # Brine specific heat, c = 4219 − 6600 w + 12000 w² [J/(kg·K)] [derived]: a quadratic through the
 # 0 °C value of water (IAPWS-95) and CoolProp INCOMP::MNA values 3.91 (5 %), 3.69 (10 %), 3.38 kJ/(kg·K)
@@ -338,38 +339,59 @@ def mixture_equilibrium(agent, salt_kg, ice_kg, water_kg, *, product_water_kg=0.
     s, ice, water = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in
                                           (salt_kg, ice_kg, np.add(water_kg, product_water_kg))))
     shape = s.shape
-    s, ice, water = (np.ravel(v) for v in (s, ice, water))
+    parts = _chunked(lambda *a: _equilibrium_flat(c, q, *a), np.ravel(s), np.ravel(ice), np.ravel(water))
+    res = [v.reshape(shape) for v in parts[:5]]
+    flag = parts[5].reshape(shape)
+    return Equilibrium(*(_out(v) for v in res), at_eutectic=bool(flag) if flag.ndim == 0 else flag)
+
+
+CHUNK = 32768
+"""Elements solved together: small enough to stay in the CPU cache (a loop over chunks, not elements)."""
+
+
+def _chunked(fun, *arrays):
+    """Apply ``fun`` to consecutive chunks of flat arrays and concatenate its tuple of results."""
+    n = arrays[0].size
+    if n <= CHUNK:
+        return fun(*arrays)
+    outs = [fun(*(a[i:i + CHUNK] for a in arrays)) for i in range(0, n, CHUNK)]
+    return tuple(np.concatenate(parts) for parts in zip(*outs, strict=True))
+
+
+def _equilibrium_flat(c: _Curve, q: float, s, ice, water):
+    """Closed-layer equilibrium on flat arrays: (T, m, undissolved, brine, w, at_eutectic)."""
     valid = (s >= 0) & (ice >= 0) & (water >= 0)
     pos = valid & (s > 0)
     sp = np.where(pos, s, 1.0)
     ii = np.where(pos, ice, 0.0)
     ww = np.where(pos, water, 0.0)
 
-    # eutectic check: residual at T_eut with all salt dissolved
-    f_e, _, _, _, _ = _residual_liquidus(c, q, np.full_like(sp, c.t_eut), sp, ii, ww)
+    # eutectic check: residual (A3) at T_eut with all salt dissolved
+    we, te = c.w_eut, c.t_eut
+    ci_e = CP_ICE_0C + 0.5 * CP_ICE_SLOPE * te
+    cb_e = CP_WATER + we * (_CB1 + _CB2 * we)
+    m_full = sp / we - sp - ww
+    f_e = L_FUSION * m_full + q * sp + (ci_e * (ii - m_full) + cb_e * sp / we) * te
     eut = pos & (f_e > 0)
 
     # root along the liquidus: dilute-limit initial guess, then bracketed Newton
-    a = ice_heat_capacity_mean(0.0) * ii
-    b = L_FUSION * (sp + ww) - q * sp
-    cc = L_FUSION * sp * c.slope0
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        a = CP_ICE_0C * ii
+        b = L_FUSION * (sp + ww) - q * sp
+        cc = L_FUSION * c.slope0 * sp
         x0 = 2.0 * cc / (b + np.sqrt(np.maximum(b * b + 4.0 * a * cc, 0.0)))
-    span = -c.t_eut
-    t0 = -np.clip(np.nan_to_num(x0, nan=0.5 * span, posinf=0.5 * span), 1e-9 * span, 0.999 * span)
-    lo = np.full_like(sp, c.t_eut)
-    hi = np.zeros_like(sp)
-    t = _newton(lambda tt: _residual_liquidus(c, q, tt, sp, ii, ww)[:2], t0, lo, hi)
-    _, _, m, brine, w = _residual_liquidus(c, q, t, sp, ii, ww)
+        span = -te
+        t0 = -np.clip(np.nan_to_num(x0, nan=0.5 * span, posinf=0.5 * span), 1e-9 * span, 0.999 * span)
+        t = _newton(lambda tt: _residual_liquidus(c, q, tt, sp, ii, ww)[:2], t0, np.full_like(sp, te),
+                    np.zeros_like(sp))
+        _, _, m, brine, w = _residual_liquidus(c, q, t, sp, ii, ww)
     und = np.zeros_like(sp)
 
-    # eutectic branch: brine at w_eut, m from (A3) (linear in m)
-    we, te = c.w_eut, c.t_eut
+    # eutectic branch: brine at w_eut, m from (A3), which is linear in m there
     ar = we / (1.0 - we)
-    ci = float(ice_heat_capacity_mean(te))
-    g = float(brine_heat_capacity(we)) / (1.0 - we)
-    den = L_FUSION + q * ar - te * ci + te * g
-    m_e = (-te * (ci * ii + g * ww) - q * ar * ww) / den
+    g = cb_e / (1.0 - we)
+    den = L_FUSION + q * ar - te * ci_e + te * g
+    m_e = (-te * (ci_e * ii + g * ww) - q * ar * ww) / den
     s_d = ar * (ww + m_e)
     t = np.where(eut, te, t)
     m = np.where(eut, m_e, m)
@@ -385,9 +407,8 @@ def mixture_equilibrium(agent, salt_kg, ice_kg, water_kg, *, product_water_kg=0.
     w = np.where(zero, 0.0, w)
     und = np.where(zero, 0.0, und)
     nan = ~valid | bad_e | (pos & (m > ii * (1 + 1e-12)))
-    res = [np.where(nan, np.nan, v).reshape(shape) for v in (t, m, und, brine, w)]
-    flag = (eut & ~nan).reshape(shape)
-    return Equilibrium(*(_out(v) for v in res), at_eutectic=bool(flag) if flag.ndim == 0 else flag)
+    res = tuple(np.where(nan, np.nan, v) for v in (t, m, und, brine, w))
+    return res + (eut & ~nan,)
 
 
 def energy_residual(agent, temperature_c, melted_kg, salt_kg, ice_kg, water_kg, undissolved_kg=0.0):
@@ -438,39 +459,44 @@ def salt_for_melt(agent, melt_kg, ice_kg, water_kg, *, water_per_salt=0.0):
     xw = float(water_per_salt)
     mm, ice, water = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (melt_kg, ice_kg, water_kg)))
     shape = mm.shape
-    mm, ice, water = (np.ravel(v) for v in (mm, ice, water))
+    (out,) = _chunked(lambda *a: (_salt_for_melt_flat(c, q, xw, *a),), np.ravel(mm), np.ravel(ice),
+                      np.ravel(water))
+    return _out(out.reshape(shape))
+
+
+def _salt_for_melt_flat(c: _Curve, q: float, xw: float, mm, ice, water):
     valid = (mm > 0) & (mm <= ice) & (water >= 0)
     mv = np.where(valid, mm, 0.5)
     iv = np.where(valid, ice, 1.0)
     wv = np.where(valid, water, 0.0)
     k = 1.0 + xw
+    liq = wv + mv
+    ice_left = iv - mv
+    lm = L_FUSION * mv
 
     def g(t):
         w, wp = _w_of_t(c, t)
-        d = 1.0 - w * k
-        s = w * (wv + mv) / d
-        brine = (wv + mv) / d
-        sp = wp * (wv + mv) / (d * d)
-        bp = (wv + mv) * k * wp / (d * d)
+        d = 1.0 / (1.0 - w * k)
+        brine = liq * d
+        s = w * brine
+        sp = wp * liq * d * d
         ci = CP_ICE_0C + 0.5 * CP_ICE_SLOPE * t
         cb = CP_WATER + w * (_CB1 + _CB2 * w)
-        dcb = (_CB1 + 2.0 * _CB2 * w) * wp
-        heat = ci * (iv - mv) + cb * brine
-        f = L_FUSION * mv + q * s + heat * t
-        df = q * sp + (0.5 * CP_ICE_SLOPE * (iv - mv) + dcb * brine + cb * bp) * t + heat
+        heat = ci * ice_left + cb * brine
+        f = lm + q * s + heat * t
+        df = q * sp + (0.5 * CP_ICE_SLOPE * ice_left + (_CB1 + 2.0 * _CB2 * w) * wp * brine + cb * k * sp) * t + heat
         return f, df, s
 
-    g_e, _, _ = g(np.full_like(mv, c.t_eut))
+    te = c.t_eut
+    g_e, _, _ = g(np.full_like(mv, te))
     unreachable = g_e > 0
-    denom = ice_heat_capacity_mean(0.0) * (iv - mv) + brine_heat_capacity(0.0) * (wv + mv) \
-        - q * (wv + mv) / c.slope0
-    span = -c.t_eut
+    denom = CP_ICE_0C * ice_left + CP_WATER * liq - q * liq / c.slope0
+    span = -te
     with np.errstate(divide="ignore", invalid="ignore"):
-        x0 = L_FUSION * mv / denom
+        x0 = lm / denom
     t0 = -np.clip(np.nan_to_num(x0, nan=0.5 * span, posinf=0.5 * span, neginf=0.5 * span),
                   1e-9 * span, 0.999 * span)
-    t = _newton(lambda tt: g(tt)[:2], t0, np.full_like(mv, c.t_eut), np.zeros_like(mv))
+    t = _newton(lambda tt: g(tt)[:2], t0, np.full_like(mv, te), np.zeros_like(mv))
     s = g(t)[2]
     s = np.where(unreachable, np.inf, s)
-    s = np.where(valid, s, np.nan)
-    return _out(s.reshape(shape))
+    return np.where(valid, s, np.nan)
