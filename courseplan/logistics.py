@@ -538,6 +538,8 @@ def plan_logistics(zones: Any, settings: PlanSettings, agent: Any) -> LogisticsR
             "product_kg", "product_p90_kg", "bags", "work_min", "pre_race_min", "passes", "depot_x",
             "depot_y", "start", "done_by", "second_pass", "geometry"]
     crews = gpd.GeoDataFrame(rows, columns=cols, geometry="geometry", crs=zones.crs)
+    second = crews["second_pass"].astype(object)
+    crews["second_pass"] = second.where(second.notna(), None)  # None, not NaN, for one pass
 
     # the order
     n_out = int(bags.sum())

@@ -153,7 +153,9 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
     for n, c in enumerate(cr["crews"]):
         mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
         depot = (c["depot_x"], c["depot_y"])
-        map_w, map_h = frame_w * 0.64, 100 * mm
+        map_w = frame_w * 0.64
+        # a smaller map leaves room for long zone lists, so the page needs less shrinking
+        map_h = max(55.0, 100.0 - 3.0 * max(len(c["zones"]) - 12, 0)) * mm
         detail, view = _map_drawing(course_geom, treated_geoms, mine, depot, map_w, map_h, detail=True)
         over, _ = _map_drawing(course_geom, treated_geoms, mine, depot, frame_w * 0.34, 40 * mm,
                                detail=False, view_of=view)
@@ -185,7 +187,7 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
             Paragraph(f"{escape(agent_label)} · race day {escape(plan_date or 'not set')} · zones in walking "
                       f"order (course order {c['first_course_order']}–{c['last_course_order']})", st["sub"]),
             Spacer(1, 2 * mm), top, Spacer(1, 2 * mm),
-            _grid_table(head, body, st, total=total, widths=[11, 18, 15, 17, 15, 14, 12, 20, 56]),
+            _grid_table(head, body, st, total=total, widths=[11, 23, 15, 17, 15, 14, 12, 20, 51]),
             Spacer(1, 2 * mm),
             Paragraph(f"<b>Hand spreading (an estimate):</b> one handful is about {num(cr['handful_g'], 0)} g; "
                       "throw the handfuls per square metre in the table on each pass. Spread the P50 dose "
@@ -403,7 +405,8 @@ def _map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float
         r = R((a - vx0) * scale + pad, (b - vy0) * scale + pad, (c2 - a) * scale, (e - b) * scale,
               fillColor=None, strokeColor=colors.black, strokeWidth=0.8, strokeDashArray=[2, 2])
         g.add(r)
-        g.add(String(pad, height - pad - 7, "Whole course", fontName="Helvetica", fontSize=7))
+        g.add(Rect(2, 2, 50, 10, fillColor=colors.white, strokeColor=None))
+        g.add(String(4, 4.5, "Whole course", fontName="Helvetica", fontSize=7))
     # north arrow (grid north of the plan's CRS)
     nx, ny = width - pad - 8, height - pad - 18
     from reportlab.graphics.shapes import Polygon
