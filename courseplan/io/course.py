@@ -1,0 +1,150 @@
+"""Read the course outline: one polygon from any vector file GDAL reads, with its CRS checked."""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import shapely
+from pyproj import CRS
+from shapely.geometry.base import BaseGeometry
+
+from ..errors import CRSError, GeometryError, InputError, MissingInputError
+
+
+@dataclass(frozen=True)
+class Course:
+    """A course outline as read: geometry in its own CRS, plus what was repaired."""
+
+    geometry: BaseGeometry
+    crs: CRS
+    name: str
+    source: str
+    warnings: tuple[str, ...] = field(default=())
+
+
+def check_readable(path: Path, what: str) -> Path:
+    """Raise :class:`MissingInputError` unless *path* is an existing, readable file."""
+    p = Path(path)
+    if not p.exists():
+        raise MissingInputError(f"{what} file not found", where=str(p),
+                                fix="check the path (relative paths in a plan file start at the plan file's folder)")
+    if p.is_dir() and p.suffix.lower() not in (".gdb",):
+        raise MissingInputError(f"{what} path is a folder, not a file", where=str(p), fix="name the file itself")
+    try:
+        if p.is_file():
+            with open(p, "rb") as fh:
+                fh.read(1)
+    except OSError as exc:
+        raise MissingInputError(f"{what} file cannot be read ({exc.strerror})", where=str(p),
+                                fix="check the file's permissions") from None
+    return p
+
+
+def check_coordinates_match_crs(bounds: tuple[float, float, float, float], crs: CRS, where: str) -> None:
+    """Refuse coordinates that cannot be in *crs* (degrees in a metric CRS or metres in a geographic one)."""
+    minx, miny, maxx, maxy = bounds
+    if crs.is_geographic:
+        if minx < -180.5 or maxx > 360.5 or miny < -90.5 or maxy > 90.5:
+            raise CRSError(f"coordinates {minx:.1f}, {miny:.1f} … {maxx:.1f}, {maxy:.1f} are not degrees, "
+                           f"but the file says {crs.to_string()}", where=where,
+                           fix="set the file's real (projected) CRS, e.g. with ogr2ogr -a_srs EPSG:32632")
+    else:
+        if (-181 < minx and maxx < 181 and -91 < miny and maxy < 91
+                and (maxx - minx) < 1.0 and (maxy - miny) < 1.0):
+            raise CRSError(f"coordinates {minx:.5f}, {miny:.5f} … {maxx:.5f}, {maxy:.5f} look like degrees, "
+                           f"but the file says {crs.to_string()} (metres)", where=where,
+                           fix="set the file's CRS to EPSG:4326, e.g. with ogr2ogr -a_srs EPSG:4326")
+
+
+def read_course(path: Path, feature: str | None = None) -> Course:
+    """Read one course polygon.
+
+    Parameters
+    ----------
+    path
+        Vector file (GeoJSON, GeoPackage, Shapefile, KML, ...).
+    feature
+        Which feature to take when the file holds several polygons: a value of a ``name`` field or
+        a 0-based index.
+
+    Raises
+    ------
+    MissingInputError, InputError, GeometryError, CRSError
+        With one line saying what is wrong and how to fix it.
+    """
+    import geopandas as gpd
+
+    p = check_readable(path, "course")
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            gdf = gpd.read_file(p)
+    except Exception as exc:  # pyogrio raises several types for unreadable data
+        raise InputError(f"cannot read the course as a vector file ({type(exc).__name__}: "
+                         f"{str(exc).splitlines()[0] if str(exc) else 'no detail'})", where=str(p),
+                         fix="give a GeoJSON, GeoPackage or Shapefile holding the course polygon") from None
+    if gdf.crs is None:
+        raise CRSError("the course file has no CRS", where=str(p),
+                       fix="save it with a CRS, or assign one (e.g. ogr2ogr -a_srs EPSG:32632 out.gpkg in.shp)")
+    crs = CRS.from_user_input(gdf.crs)
+    gdf = gdf[gdf.geometry.notna()]
+    is_poly = gdf.geometry.geom_type.isin(["Polygon", "MultiPolygon"])
+    polys = gdf[is_poly]
+    if len(polys) == 0:
+        kinds = ", ".join(sorted(set(gdf.geometry.geom_type))) or "no geometries"
+        raise GeometryError(f"the course file holds no polygon (found: {kinds})", where=str(p),
+                            fix="draw the course outline as a polygon")
+    name_col = next((c for c in polys.columns if c.lower() in ("name", "course", "label")), None)
+    if len(polys) > 1:
+        if feature is None:
+            names = ([str(v) for v in polys[name_col]] if name_col else [str(i) for i in range(len(polys))])
+            raise GeometryError(f"the course file holds {len(polys)} polygons ({', '.join(names[:8])})",
+                                where=str(p),
+                                fix="pick one with --course-feature NAME_OR_INDEX or [inputs] course_feature")
+        polys = _pick(polys, feature, name_col, p)
+    elif feature is not None:
+        polys = _pick(polys, feature, name_col, p)
+    row = polys.iloc[0]
+    geom = row.geometry
+    name = str(row[name_col]) if name_col and row[name_col] is not None else p.stem
+    check_coordinates_match_crs(tuple(geom.bounds), crs, str(p))
+    geom, notes = repair_polygon(geom, str(p))
+    return Course(geometry=geom, crs=crs, name=name, source=str(p), warnings=tuple(notes))
+
+
+def _pick(polys, feature: str, name_col: str | None, p: Path):
+    if name_col is not None:
+        hit = polys[polys[name_col].astype(str) == str(feature)]
+        if len(hit) == 1:
+            return hit
+    if str(feature).isdigit() and int(feature) < len(polys):
+        return polys.iloc[[int(feature)]]
+    valid = ([str(v) for v in polys[name_col]] if name_col else []) + [str(i) for i in range(len(polys))]
+    raise GeometryError(f"no course polygon matches {feature!r}", where=str(p),
+                        fix="use one of: " + ", ".join(valid[:12]))
+
+
+def repair_polygon(geom: BaseGeometry, where: str, max_change: float = 0.01) -> tuple[BaseGeometry, list[str]]:
+    """Check a course polygon; repair an invalid one when the repair changes its area by < 1 %.
+
+    Returns the (possibly repaired) geometry and warnings that say where it was invalid.
+    """
+    notes: list[str] = []
+    if geom.is_empty or geom.area <= 0:
+        raise GeometryError("the course polygon is empty or has zero area", where=where,
+                            fix="draw the outline with at least three distinct corners")
+    if not geom.is_valid:
+        reason = shapely.is_valid_reason(geom)
+        fixed = shapely.make_valid(geom)
+        if fixed.geom_type == "GeometryCollection":
+            fixed = shapely.unary_union([g for g in fixed.geoms if g.geom_type in ("Polygon", "MultiPolygon")])
+        change = abs(fixed.area - abs(geom.area)) / max(fixed.area, 1e-12) if not fixed.is_empty else 1.0
+        if fixed.is_empty or fixed.geom_type not in ("Polygon", "MultiPolygon") or change > max_change:
+            raise GeometryError(f"the course polygon is invalid ({reason}) and cannot be repaired safely",
+                                where=where, fix="redraw the outline without crossing edges")
+        notes.append(f"{where}: the course polygon was invalid ({reason}); repaired, area changed by "
+                     f"{100 * change:.2f} %")
+        geom = fixed
+    return geom, notes

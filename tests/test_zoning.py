@@ -1,0 +1,183 @@
+"""Zoning stage on tiny synthetic courses with hand-computable answers."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import shapely
+from affine import Affine
+from hypothesis import HealthCheck, given, settings, strategies as st
+from pyproj import CRS
+from shapely.geometry import LineString, Polygon, box
+
+from courseplan.columns import ZONING
+from courseplan.errors import InputError, OverlapError
+from courseplan.grid import Grid
+from courseplan.settings import Zoning
+from courseplan.zoning import ZoningInputs, distance_along_course, zone_course
+
+CRS32632 = CRS.from_epsg(32632)
+
+
+def strip_grid(cell=1.0, width=260, height=100, x0=-30.0, y0=70.0, fn=None):
+    """A sun grid covering the strip box(0, 0, 200, 40) with a margin."""
+    t = Affine(cell, 0, x0, 0, -cell, y0)
+    cols, rows = int(width / cell), int(height / cell)
+    xs = x0 + cell * (np.arange(cols) + 0.5)
+    ys = y0 - cell * (np.arange(rows) + 0.5)
+    X, Y = np.meshgrid(xs, ys)
+    vals = fn(X, Y).astype(np.float32)
+    return Grid(values=vals, transform=t, crs=CRS32632, source="synthetic")
+
+
+def test_strip_sunny_and_shaded_half():
+    # Hand computation: the strip 200 m x 40 m has 8000 m2; the northern half (y > 20) is in sun
+    # (fraction 0.9), the southern half shaded (0.1): two exposure zones of 4000 m2 each when
+    # sections are longer than the course.
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(Y > 20, 0.9, 0.1))
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=1000.0, min_zone_area_m2=100.0), window_hours=3.0)
+    z = res.zones
+    assert sorted(z["exposure_class"]) == ["full-sun", "shaded"]
+    assert z["map_area_m2"].sum() == pytest.approx(8000.0, rel=1e-9)
+    for a in z["map_area_m2"]:
+        assert a == pytest.approx(4000.0, rel=1e-6)
+    assert (z["area_m2"] == z["map_area_m2"]).all()  # no DEM: flat
+    for c in ZONING:
+        assert c.name in z.columns
+
+
+def test_strip_sections_and_surface_area_on_a_plane():
+    # A plane dipping 30 degrees: surface area = map area / cos(30 deg) = 8000 / 0.8660 = 9237.6 m2.
+    # Sections of 50 m along a 200 m strip from the west end: 4 sections x 2 exposures = 8 zones,
+    # each 50 m x 20 m = 1000 m2 of map area.
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(Y > 20, 0.9, 0.1))
+    slope = Grid(values=np.full(sun.shape, 30.0, np.float32), transform=sun.transform, crs=sun.crs)
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", slope_deg=slope,
+                                   start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=50.0, min_zone_area_m2=100.0), window_hours=3.0)
+    z = res.zones
+    assert len(z) == 8
+    assert z["map_area_m2"].sum() == pytest.approx(8000.0, rel=1e-9)
+    assert z["area_m2"].sum() == pytest.approx(8000.0 / math.cos(math.radians(30.0)), rel=1e-6)
+    np.testing.assert_allclose(z["map_area_m2"], 1000.0, rtol=0.03)
+    # course order follows the distance from the west end
+    assert list(z["course_order"]) == list(range(1, 9))
+    xs = z.geometry.centroid.x.to_numpy()
+    assert np.all(np.diff(xs[::2]) > 0) or np.all(np.diff(np.sort(xs)) >= 0)
+    assert (np.diff(z["distance_from_start_m"].to_numpy()) >= -1e-9).all()
+    assert set(z["slope_class"]) == {"25–90°"}
+
+
+def test_sections_follow_a_winding_course():
+    # A U-shaped course: down the west leg, across, up the east leg. Distance along the course
+    # (not straight-line distance) must increase zone by zone: the east leg's bottom comes before
+    # its top even though the top is nearer the start as the crow flies.
+    line = LineString([(20, 380), (20, 20), (180, 20), (180, 380)])
+    course = line.buffer(15, cap_style="flat")
+    sun = strip_grid(cell=2.0, width=300, height=460, x0=-50.0, y0=420.0, fn=lambda X, Y: np.full_like(X, 0.5))
+    for centre in (None, line):
+        res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(20.0, 380.0),
+                                       centreline=centre),
+                          Zoning(section_length_m=100.0, min_zone_area_m2=200.0), window_hours=3.0)
+        z = res.zones
+        assert z["map_area_m2"].sum() == pytest.approx(course.area, rel=1e-9)
+        # total length ~ 360 + 160 + 360 = 880 m -> 9 sections of 100 m
+        assert 8 <= len(z) <= 10
+        cy = z.geometry.centroid
+        east = z[cy.x > 150]
+        assert (np.diff(east.geometry.centroid.y.to_numpy()) > 0).all()
+        west = z[cy.x < 50]
+        assert (np.diff(west.geometry.centroid.y.to_numpy()) < 0).all()
+
+
+def test_geodesic_distance_matches_hand_value():
+    # Straight 200 m strip from x=0: the far end is ~200 m from the start (within one coarse cell).
+    course = box(0, 0, 200, 10)
+    sun = strip_grid(fn=lambda X, Y: np.full_like(X, 0.5))
+    from courseplan.zoning import _rasterize
+    mask = _rasterize(course, sun, True)
+    d, s, f, _ = distance_along_course(mask, sun, (0.0, 5.0))
+    assert np.nanmax(d) == pytest.approx(200.0, abs=2.0)
+    assert f[0] == pytest.approx(200.0, abs=2.0)
+
+
+def test_small_slivers_merge_into_most_similar_neighbour():
+    # A 6 m x 6 m patch of full sun (36 m2) inside shade on one side, part-sun on the other:
+    # below the 100 m2 minimum it must merge, and the most similar neighbour of full-sun is part-sun.
+    course = box(0, 0, 200, 40)
+
+    def fn(X, Y):
+        v = np.where(X < 100, 0.1, 0.5)
+        v = np.where((np.abs(X - 101) < 3) & (np.abs(Y - 20) < 3), 0.9, v)
+        return v
+    sun = strip_grid(fn=fn)
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=1000.0, min_zone_area_m2=100.0), window_hours=3.0)
+    z = res.zones
+    assert sorted(z["exposure_class"]) == ["part-sun", "shaded"]
+    # The patch's cell centres run x = 98.5 … 103.5: two of its six columns lie west of x = 100,
+    # so the part-sun zone gains those 2 x 6 = 12 m2 and the shaded zone loses them.
+    part = z[z["exposure_class"] == "part-sun"].iloc[0]
+    assert part["map_area_m2"] == pytest.approx(4012.0, abs=1e-6)
+
+
+def test_values_outside_encoding_are_refused():
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.full_like(X, 55.0))
+    with pytest.raises(InputError, match="outside the range"):
+        zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction"), Zoning(), window_hours=3.0)
+
+
+def test_partial_cover_warns_then_refuses():
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(X > 197, np.nan, 0.5))  # 1.5 % uncovered
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(), window_hours=3.0)
+    assert res.uncovered_share == pytest.approx(3 / 200, abs=0.002)
+    assert any("no sun data" in n for n in res.notes)
+    sun = strip_grid(fn=lambda X, Y: np.where(X > 150, np.nan, 0.5))  # 25 % uncovered
+    with pytest.raises(OverlapError, match="covers only 75.0 %"):
+        zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction"), Zoning(), window_hours=3.0)
+    sun = strip_grid(fn=lambda X, Y: np.full_like(X, np.nan))
+    with pytest.raises(InputError, match="only nodata"):
+        zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction"), Zoning(), window_hours=3.0)
+
+
+@st.composite
+def random_polygons(draw):
+    n = draw(st.integers(5, 12))
+    angles = sorted(draw(st.lists(st.floats(0, 2 * math.pi), min_size=n, max_size=n, unique=True)))
+    radii = draw(st.lists(st.floats(20, 90), min_size=n, max_size=n))
+    pts = [(100 + r * math.cos(a), 30 + r * math.sin(a) * 0.4) for a, r in zip(angles, radii, strict=True)]
+    poly = Polygon(pts)
+    if not poly.is_valid or poly.area < 300:
+        poly = shapely.make_valid(poly)
+        poly = max(getattr(poly, "geoms", [poly]), key=lambda g: g.area)
+    return poly
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(poly=random_polygons(), seed=st.integers(0, 10_000), min_area=st.floats(20, 600))
+def test_zone_areas_sum_to_course_area(poly, seed, min_area):
+    # Property: whatever the polygon and the sun pattern, zones tile the course exactly.
+    rng = np.random.default_rng(seed)
+    blobs = rng.uniform(0, 1, size=(6, 6))
+
+    def fn(X, Y):
+        i = np.clip(((X + 30) / 260 * 6).astype(int), 0, 5)
+        j = np.clip(((70 - Y) / 100 * 6).astype(int), 0, 5)
+        return blobs[j, i]
+    sun = strip_grid(cell=2.0, fn=fn, x0=-30.0, y0=70.0, width=260, height=100)
+    if poly.geom_type != "Polygon" or poly.area < 50:
+        return
+    res = zone_course(ZoningInputs(course=poly, sun=sun, encoding="fraction"),
+                      Zoning(section_length_m=60.0, min_zone_area_m2=min_area), window_hours=3.0)
+    z = res.zones
+    assert z["map_area_m2"].sum() == pytest.approx(poly.area, rel=5e-3)
+    assert shapely.union_all(z.geometry.values).symmetric_difference(poly).area < 1e-6 * poly.area + 1e-6
+    assert list(z["zone_id"]) == list(range(1, len(z) + 1))
