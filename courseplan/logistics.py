@@ -251,7 +251,7 @@ def zone_bags(p90_kg: np.ndarray, margin_pct: float, bag_kg: float) -> np.ndarra
 
 def packages_for(total_kg: float, bag_kg: float, big_bag_kg: float | None, big_bag_from_kg: float
                  ) -> tuple[Package, ...]:
-    """Packages covering ``total_kg``: whole big bags from the threshold on, the rest in bags."""
+    """Choose packages covering ``total_kg``: whole big bags from the threshold on, the rest in bags."""
     out: list[Package] = []
     rest = total_kg
     if big_bag_kg and total_kg >= big_bag_from_kg and total_kg >= big_bag_kg:

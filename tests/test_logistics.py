@@ -17,7 +17,8 @@ import geopandas as gpd
 import numpy as np
 import pytest
 import shapely
-from hypothesis import HealthCheck, assume, given, settings as hsettings
+from hypothesis import HealthCheck, assume, given
+from hypothesis import settings as hsettings
 from hypothesis import strategies as st
 
 from courseplan import columns
@@ -35,7 +36,7 @@ from courseplan.settings import PlanSettings
 
 
 def stand_in_agent(**kw):
-    """An agent-like object; numbers made up for the tests."""
+    """Make an agent-like object; numbers made up for the tests."""
     base = dict(name="NaCl", label="Sodium chloride (test)", formula="NaCl", molar_mass_g_mol=58.443,
                 nitrogen_fraction=0.0, chloride_fraction=0.6066, purity=0.97, bulk_density_kg_m3=1200.0,
                 bag_sizes_kg=(25.0,), big_bag_kg=1000.0, bags_per_pallet=40, oxidiser=False)
@@ -105,7 +106,8 @@ def test_packages_big_bags_from_threshold():
 
 
 def test_storage_cautions_keep_nitrate_and_chloride_apart():
-    an = storage_cautions(stand_in_agent(name="NH4NO3", formula="NH4NO3", oxidiser=True, chloride_fraction=0.0))
+    an = storage_cautions(stand_in_agent(name="NH4NO3", formula="NH4NO3", oxidiser=True,
+                                         chloride_fraction=0.0))
     assert any("chloride" in c.lower() and "apart" in c.lower() for c in an)
     assert any("2019/1148" in c for c in an)
     cl = storage_cautions(stand_in_agent())

@@ -31,17 +31,19 @@ AGENT = types.SimpleNamespace(name="NH4NO3", label="Ammonium nitrate (test)", fo
 
 
 def zones_along_a_bend(n=12):
-    """n zones, 30 m wide, 60 m long, stepping down and sideways; zone 5 untreated."""
+    """N zones, 30 m wide, 60 m long, stepping down and sideways; zone 5 untreated."""
     rows = []
     for i in range(n):
         x = 15.0 * i
-        geom = shapely.Polygon([(x, -60 * i), (x + 30, -60 * i), (x + 45, -60 * (i + 1)), (x + 15, -60 * (i + 1))])
+        y0, y1 = -60.0 * i, -60.0 * (i + 1)
+        geom = shapely.Polygon([(x, y0), (x + 30, y0), (x + 45, y1), (x + 15, y1)])
         area = geom.area * 1.04
         dose = 0.0 if i == 4 else 20.0 + 4.0 * i
         kg = area * dose / 1000
         rows.append(dict(zone_id=i + 1, course_order=i + 1, section=f"{i // 4 * 250}-{i // 4 * 250 + 250} m",
                          area_m2=area, dose_g_m2=dose, dose_p90_g_m2=dose * 1.4, passes=2 if dose > 50 else 1,
-                         product_kg=kg, product_p90_kg=kg * 1.4, nitrogen_kg=kg * 0.97 * 0.35, chloride_kg=0.0,
+                         product_kg=kg, product_p90_kg=kg * 1.4, nitrogen_kg=kg * 0.97 * 0.35,
+                         chloride_kg=0.0,
                          verdict="treat" if dose else "too-dry",
                          advice="Spread evenly; turn apex first." if dose else "Too dry: water first.",
                          geometry=geom))
@@ -110,8 +112,8 @@ def test_order_sheet_shows_the_summary_figures(result, pdfs):
     r, _ = result
     o = r.summary()["order"]
     text = " ".join(page_texts(pdfs / "order.pdf"))
-    for key in ("p50_kg", "p90_kg", "needed_kg", "handed_out_kg", "order_kg", "nitrogen_kg", "nitrogen_p90_kg",
-                "chloride_kg"):
+    for key in ("p50_kg", "p90_kg", "needed_kg", "handed_out_kg", "order_kg", "nitrogen_kg",
+                "nitrogen_p90_kg", "chloride_kg"):
         assert f"{num(o[key])} kg" in text, key
     assert f"{num(o['tonnes'], 3)} t" in text
     assert f"{num(o['cost'], 2)} EUR" in text
@@ -155,7 +157,8 @@ def test_no_crews_gives_one_page(tmp_path):
     z, course = zones_along_a_bend(3)
     z["product_kg"] = 0.0
     r = plan_logistics(z, PlanSettings(), AGENT)
-    write_crews_pdf(tmp_path / "c.pdf", r, course, plan_name="P", plan_date=None, agent_label="x", cautions=[])
+    write_crews_pdf(tmp_path / "c.pdf", r, course, plan_name="P", plan_date=None, agent_label="x",
+                    cautions=[])
     texts = page_texts(tmp_path / "c.pdf")
     assert len(texts) == 1 and "No zone needs treatment" in texts[0]
 

@@ -82,20 +82,22 @@ def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str
         ["Pallets (bags per pallet; one place per big bag)",
          "unknown: set [logistics] bags_per_pallet" if o["pallets"] is None else str(o["pallets"])],
         ["Cost", "no price given" if o["cost"] is None else
-         f"{num(o['cost'], 2)} {escape(o['currency'])} ({num(o['price_per_kg'], 2)} {escape(o['currency'])}/kg)"],
+         f"{num(o['cost'], 2)} {o['currency']} ({num(o['price_per_kg'], 2)} {o['currency']}/kg)"],
     ]
     story.append(_kv_table(rows, st))
     if o["big_bags"]:
         story.append(Paragraph("Big bags go to depots a machine can reach; crews fill their "
                                f"{num(o['bag_kg'])} kg bags from them there.", st["small"]))
     story += [Spacer(1, 3 * mm), Paragraph("What the plan puts on the hill", st["h2"]),
-              _kv_table([["Nitrogen", f"{num(o['nitrogen_kg'])} kg (P50), {num(o['nitrogen_p90_kg'])} kg (P90)"],
-                         ["Chloride", f"{num(o['chloride_kg'])} kg (P50), {num(o['chloride_p90_kg'])} kg (P90)"]],
-                        st),
+              _kv_table([["Nitrogen",
+                          f"{num(o['nitrogen_kg'])} kg (P50), {num(o['nitrogen_p90_kg'])} kg (P90)"],
+                         ["Chloride",
+                          f"{num(o['chloride_kg'])} kg (P50), {num(o['chloride_p90_kg'])} kg (P90)"]], st),
               Spacer(1, 3 * mm), Paragraph("Storage", st["h2"])]
     story += [Paragraph("• " + escape(c), st["body"]) for c in o["storage_cautions"]]
     story += [Spacer(1, 3 * mm), Paragraph("Depots and crews", st["h2"]),
-              Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot are "
+              Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot "
+                        "are "
                         "whole bags per zone (P90 + margin). Every crew finishes its first pass "
                         f"{num(cr['wait_min'], 0)} min before the first start at {cr['first_start']}.",
                         st["small"])]
@@ -189,7 +191,8 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
             Spacer(1, 2 * mm), top, Spacer(1, 2 * mm),
             _grid_table(head, body, st, total=total, widths=[11, 23, 15, 17, 15, 14, 12, 20, 51]),
             Spacer(1, 2 * mm),
-            Paragraph(f"<b>Hand spreading (an estimate):</b> one handful is about {num(cr['handful_g'], 0)} g; "
+            Paragraph("<b>Hand spreading (an estimate):</b> one handful is about "
+                      f"{num(cr['handful_g'], 0)} g; "
                       "throw the handfuls per square metre in the table on each pass. Spread the P50 dose "
                       "evenly over the whole width, turn apexes included, with no clumps; the bags hold P90 "
                       "plus margin, so some may come back.", st["body"]),
@@ -340,7 +343,7 @@ def _build(path: str | os.PathLike[str], story: list[Any], plan_name: str, plan_
 def _map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float], width: float,
                  height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None
                  ) -> tuple[Any, tuple[float, float, float, float]]:
-    """A vector map: course outline, treated zones (grey), this crew's zones (hatched, numbered), depot."""
+    """Draw a vector map: course outline, treated zones (grey), the crew's zones (hatched), depot."""
     import shapely
     from reportlab.graphics.shapes import Drawing, Group, Rect, String
     from reportlab.lib import colors
