@@ -194,7 +194,7 @@ def freezing_point(agent, mass_fraction):
     """
     c = _curve(agent)
     w = np.asarray(mass_fraction, dtype=float)
-    t = _t_of_w(c, np.clip(w, 0.0, c.w_eut))
+    t = np.clip(_t_of_w(c, np.clip(w, 0.0, c.w_eut)), c.t_eut, 0.0)
     return _out(np.where((w >= 0.0) & (w <= c.w_eut * (1 + 1e-12)), t, np.nan))
 
 
@@ -217,6 +217,7 @@ def liquidus_mass_fraction(agent, temperature_c):
     c = _curve(agent)
     t = np.asarray(temperature_c, dtype=float)
     w, _ = _w_of_t(c, np.clip(t, c.t_eut, 0.0))
+    w = np.clip(w, 0.0, c.w_eut)  # rounding at the grid ends
     return _out(np.where((t <= 0.0) & (t >= c.t_eut), w, np.nan))
 
 
