@@ -56,6 +56,10 @@ class Inputs:
     sun_encoding: str = _f("fraction", "what the sun raster holds", choices=SUN_ENCODINGS)
     dem: Path | None = _f(None, "terrain model (GeoTIFF, heights in metres)")
     observations: Path | None = _f(None, "field observations (CSV or a vector point file)")
+    observations_crs: str | None = _f(None, "CRS of x/y columns in an observations CSV (lon/lat columns "
+                                            "need none)")
+    max_uncovered_pct: float = _f(5.0, "refuse a sun raster or DEM that leaves more than this share of the "
+                                       "course without data", unit="%", lo=0.0, hi=100.0)
     forecast: Path | None = _f(None, "hourly forecast CSV; without it [forecast] constants are used")
     centreline: Path | None = _f(None, "course centreline from start to finish (vector line)")
     markers: Path | None = _f(None, "named section markers along the course (vector points)")

@@ -1,0 +1,45 @@
+"""One-call library entry point: read inputs, run the plan, write the outputs."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from .settings import PlanSettings
+
+
+def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite: bool = False, progress=None):
+    """Run a whole plan and write its outputs into *out_dir*.
+
+    Parameters
+    ----------
+    settings
+        Validated settings, or the path of a plan file.
+    out_dir
+        Output folder (must not exist unless *overwrite*).
+    overwrite
+        Replace an existing output folder (only once the new outputs are complete).
+    progress
+        Optional callable ``progress(stage_name)``.
+
+    Returns
+    -------
+    PlanResult
+        The result that was written.
+    """
+    from .io.loader import load_inputs
+    from .io.outputs import write_outputs
+    from .io.planfile import read_plan
+    from .pipeline import run_plan
+
+    if not isinstance(settings, PlanSettings):
+        settings = read_plan(settings)
+    out = Path(out_dir)
+    if out.exists() and not overwrite:
+        from .errors import OutputError
+
+        raise OutputError("the output folder already exists", where=str(out),
+                          fix="choose a new --out folder or add --overwrite")
+    inputs = load_inputs(settings)
+    result = run_plan(settings, inputs, progress=progress)
+    write_outputs(result, out, overwrite=overwrite)
+    return result

@@ -1,0 +1,178 @@
+"""Write a plan's outputs into a folder, all or nothing.
+
+Everything is written into a fresh temporary folder beside the target and moved into place at
+the end, so an interrupted run (Ctrl-C, a full disk) leaves no half-written output; an existing
+output folder is refused unless ``overwrite`` is set, and then replaced only after the new one is
+complete.  Inputs are never opened for writing.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import shutil
+import tempfile
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .. import __version__
+from ..columns import ALL as ALL_COLUMNS
+from ..errors import OutputError
+
+FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, dict):
+        return {str(k): _plain(x) for k, x in v.items()}
+    if isinstance(v, list | tuple):
+        return [_plain(x) for x in v]
+    if isinstance(v, np.generic):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    if isinstance(v, pd.Timestamp):
+        return v.isoformat()
+    if isinstance(v, Path):
+        return str(v)
+    return v
+
+
+def summary_dict(result) -> dict[str, Any]:
+    """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions."""
+    z = result.zones
+    cols = [c for c in z.columns if c != "geometry"]
+    zones = []
+    for rec in z[cols].to_dict("records"):
+        zones.append({k: _plain(v) for k, v in rec.items()})
+    log = result.logistics.summary()
+    out = {
+        "courseplan_version": __version__,
+        "plan": result.settings.plan.name,
+        "date": result.settings.plan.date,
+        "window": {"start": result.settings.window.start, "end": result.settings.window.end,
+                   "timezone": result.settings.plan.timezone},
+        **result.totals(),
+        "crs": result.crs.to_string(),
+        "start_xy": list(result.start_xy),
+        "finish_xy": list(result.finish_xy),
+        "order": log.get("order"),
+        "crews": log.get("crews"),
+        "weather": result.weather.describe(),
+        "sources": result.sources,
+        "units": {c.name: c.unit for c in ALL_COLUMNS if c.unit},
+        "notes": list(result.notes),
+        "cautions": list(result.cautions),
+        "settings": result.settings.to_dict(),
+        "zones": zones,
+    }
+    return _plain(out)
+
+
+def _gpkg_ready(gdf):
+    g = gdf.copy()
+    for c in g.columns:
+        if c == g.geometry.name:
+            continue
+        if g[c].dtype == object:
+            g[c] = g[c].map(lambda v: None if v is None else (json.dumps(_plain(v)) if isinstance(v, list | tuple | dict)
+                                                             else str(v)))
+        elif str(g[c].dtype) == "bool":
+            g[c] = g[c].astype(np.int8)
+    return g
+
+
+def write_gpkg(path: Path, result) -> None:
+    """Write ``zones``, ``course``, ``observations``, ``crews`` and the ``plan_settings``, ``plan_totals``
+    and ``units`` tables into one GeoPackage."""
+    import pyogrio
+
+    _gpkg_ready(result.zones).to_file(path, layer="zones", driver="GPKG", engine="pyogrio")
+    result.course.to_file(path, layer="course", driver="GPKG", engine="pyogrio")
+    if result.observations is not None and len(result.observations):
+        obs = result.observations.copy()
+        obs["time"] = obs["time"].astype(str)
+        _gpkg_ready(obs).to_file(path, layer="observations", driver="GPKG", engine="pyogrio")
+    crews = result.logistics.crews
+    if crews is not None and len(crews):
+        _gpkg_ready(crews).to_file(path, layer="crews", driver="GPKG", engine="pyogrio")
+    flat = []
+    for table, kv in result.settings.to_dict().items():
+        for k, v in kv.items():
+            flat.append({"table": table, "key": k, "value": json.dumps(_plain(v), ensure_ascii=False)})
+    pyogrio.write_dataframe(pd.DataFrame(flat), path, layer="plan_settings", driver="GPKG")
+    tot = {k: json.dumps(_plain(v), ensure_ascii=False) for k, v in result.totals().items()}
+    pyogrio.write_dataframe(pd.DataFrame({"key": list(tot), "value": list(tot.values())}), path,
+                            layer="plan_totals", driver="GPKG")
+    units = pd.DataFrame([{"column": c.name, "unit": c.unit, "meaning": c.meaning, "stage": c.stage}
+                          for c in ALL_COLUMNS])
+    pyogrio.write_dataframe(units, path, layer="units", driver="GPKG")
+
+
+def write_map(path: Path, result) -> None:
+    """Write the offline map page."""
+    from ..columns import ALL
+    from ..webmap import context_from_raster, render_map_html
+
+    ctx = None
+    if result.context is not None:
+        kind = "terrain" if result.sources.get("dem") else "sun"
+        vals = result.context.values
+        sun_max = float(np.nanmax(vals)) if kind == "sun" and np.isfinite(vals).any() else 1.0
+        ctx = context_from_raster(vals, result.context.transform, result.crs, kind=kind,
+                                  sun_max=max(sun_max, 1e-9))
+    html = render_map_html(result.zones, result.course, title=result.settings.plan.name,
+                           agent_label=result.agent.label, cautions=list(result.cautions),
+                           observations=result.observations, crews=result.logistics.crews, context=ctx,
+                           start_xy=result.start_xy, finish_xy=result.finish_xy,
+                           units={c.name: c.unit for c in ALL})
+    path.write_text(html, encoding="utf-8")
+
+
+def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Path]:
+    """Write every output of a plan into *out_dir* (all or nothing).
+
+    Raises
+    ------
+    OutputError
+        When *out_dir* exists and *overwrite* is False, or it cannot be written.
+    """
+    from .sheets import write_crews_pdf, write_order_pdf
+
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not overwrite:
+        raise OutputError("the output folder already exists", where=str(out_dir),
+                          fix="choose a new --out folder or add --overwrite")
+    if out_dir.exists() and not out_dir.is_dir():
+        raise OutputError("the output path is a file", where=str(out_dir), fix="choose a folder name")
+    parent = out_dir.resolve().parent
+    try:
+        parent.mkdir(parents=True, exist_ok=True)
+        tmp = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.part-", dir=parent))
+    except OSError as exc:
+        raise OutputError(f"cannot create the output folder ({exc.strerror})", where=str(out_dir),
+                          fix="check the path and permissions") from None
+    try:
+        pl = result.settings.plan
+        write_gpkg(tmp / "zones.gpkg", result)
+        write_map(tmp / "map.html", result)
+        summary = summary_dict(result)
+        (tmp / "summary.json").write_text(json.dumps(summary, indent=2, ensure_ascii=False), encoding="utf-8")
+        kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
+                  cautions=list(result.cautions))
+        write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
+        write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
+        old = None
+        if out_dir.exists():
+            old = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.old-", dir=parent))
+            out_dir.rename(old / "x")
+        tmp.rename(out_dir)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return [out_dir / f for f in FILES]

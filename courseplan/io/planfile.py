@@ -1,0 +1,22 @@
+"""Read a plan file (TOML) into validated :class:`~courseplan.settings.PlanSettings`."""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+from ..errors import SettingsError
+from ..settings import PlanSettings, settings_from_mapping
+from .course import check_readable
+
+
+def read_plan(path: Path | str) -> PlanSettings:
+    """Read and validate a plan file; relative paths resolve against its folder."""
+    p = check_readable(Path(path), "plan")
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise SettingsError(f"not valid TOML ({exc})", where=str(p), fix="check the quoting and brackets") from None
+    except UnicodeDecodeError:
+        raise SettingsError("not a UTF-8 text file", where=str(p), fix="save the plan file as UTF-8") from None
+    return settings_from_mapping(data, source=p.name, base=p.parent)
