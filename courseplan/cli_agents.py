@@ -47,7 +47,7 @@ def agents_command(as_json: bool, agents_file: Path | None, sources: bool) -> No
                     ("eutectic °C / %", {"justify": "right"}), ("ΔsolH kJ/mol", {"justify": "right"}),
                     ("kJ/kg", {"justify": "right"}), ("purity", {"justify": "right"}),
                     ("bulk kg/m³", {"justify": "right"}), ("bags kg", {}), ("curve", {}), ("notes", {})):
-        t.add_column(col, **kw)
+        t.add_column(col, no_wrap=col not in ("label", "notes"), **kw)
     for ag in _rows(cat):
         notes = []
         if ag.oxidiser:
@@ -63,7 +63,7 @@ def agents_command(as_json: bool, agents_file: Path | None, sources: bool) -> No
                   f"{ag.purity:.2f}", f"{ag.bulk_density_kg_m3:.0f}",
                   ", ".join(f"{b:g}" for b in ag.bag_sizes_kg) + f" (big bag {ag.big_bag_kg:g})",
                   "approximate" if ag.curve_approximate else "tabulated", "; ".join(notes))
-    con = Console(file=sys.stdout, width=max(160, Console().width))
+    con = Console(file=sys.stdout, width=max(200, Console().width))
     con.print(t)
     con.print("kJ/kg: heat absorbed (+) or released (−) per kg of salt on dissolving. "
               "Confidence of each value: `courseplan agents --sources` or `--json`.")

@@ -174,3 +174,17 @@ def test_cli_agents_bad_file(tmp_path):
     p.write_text('[NaCl]\npurity = 7\n', encoding="utf-8")
     r = CliRunner().invoke(agents_command, ["--agents-file", str(p)])
     assert r.exit_code != 0 and "purity" in r.output and "Traceback" not in r.output
+
+
+def test_package_level_api_accepts_scalars_and_arrays():
+    import numpy as np
+
+    import courseplan
+
+    assert courseplan.freezing_point("rock salt", 0.10) == pytest.approx(-6.56, abs=0.1)
+    w = courseplan.liquidus_mass_fraction("NaCl", np.array([-1.19, -6.56]))
+    np.testing.assert_allclose(w, [0.02, 0.10], atol=5e-4)
+    e = courseplan.mixture_equilibrium("NaCl", 1 / 3, 1.0, 0.0)
+    assert e.temperature_c == pytest.approx(-21.12) and e.undissolved_kg > 0 and e.melted_kg > 0
+    assert courseplan.refreeze_ratio("urea", -2.0) > 0
+    assert courseplan.get_agent("an").name == "NH4NO3" and "KCl" in courseplan.catalogue()
