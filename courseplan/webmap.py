@@ -66,8 +66,11 @@ TERRAIN_LOW, TERRAIN_HIGH = "#d8dccd", "#f6f3ea"
 MAP_BACKGROUND = "#eceee8"
 """Map background where there is no context picture."""
 
-ZONE_FILL_OPACITY = 0.82
+ZONE_FILL_OPACITY = 0.88
 """Opacity of the zone fills (the context picture shows through a little)."""
+
+CONTEXT_OPACITY = 0.75
+"""Opacity of the context picture over the map background."""
 
 DEFAULT_TOLERANCE_M = 0.75
 """Display simplification tolerance [m]."""
@@ -587,7 +590,7 @@ if (D.obs){
 }
 L.control.layers(base, overlays, {collapsed:window.innerWidth<760}).addTo(map);
 var Legend = L.Control.extend({options:{position:"bottomright"}, onAdd:function(){
-  var box = L.DomUtil.create("details", "maplegend"); if(window.innerWidth>=760){box.open=true;}
+  var box = L.DomUtil.create("details", "maplegend");
   var sm = el("summary", null, "Legend"); box.appendChild(sm);
   var copy = document.getElementById("legend").cloneNode(true); copy.removeAttribute("id");
   box.appendChild(copy);
@@ -737,7 +740,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
             data[key] = [round(lat, 7), round(lon, 7)]
     if context is not None:
         (s, w), (n, e) = context.latlon_bounds()
-        data["context"] = {"uri": context.png_data_uri(), "bounds": [[s, w], [n, e]], "opacity": 0.95,
+        data["context"] = {"uri": context.png_data_uri(), "bounds": [[s, w], [n, e]], "opacity": CONTEXT_OPACITY,
                            "name": "Context: " + ("sun and shade" if context.kind == "sun" else "terrain")}
     allg = [g for g in list(zg) + list(cg) if g is not None and not g.is_empty]
     minx, miny, maxx, maxy = gpd.GeoSeries(allg).total_bounds
