@@ -1,0 +1,5 @@
+"""Pure, vectorised physics: brine thermodynamics (Part A), surface energy balance (Part B), dose,
+passes, verdicts, calibration and sampling (Parts C–E), solar position and terrain.
+
+No files, no printing; every function accepts scalars and numpy arrays.
+"""
