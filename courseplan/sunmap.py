@@ -1,0 +1,221 @@
+"""Stage: sun and shade over a race-day window, from a terrain model (DEM).
+
+Data in, data out, no files.  For every time step of the window: the sun's position (NREL SPA via
+pvlib), the cast shadows of all terrain in the DEM (:class:`courseplan.physics.terrain.ShadowCaster`),
+the sun behind the slope and the sun below the horizon; clear-sky irradiance (Ineichen–Perez via
+pvlib) transposed onto each cell's slope.  See ``docs/sun.md`` for methods, equations and limits.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from courseplan.errors import CRSError, InputError
+from courseplan.physics.solar import ClearSkyWindow, clear_sky_window, sky_view_isotropic
+from courseplan.physics.terrain import (
+    ShadowCaster,
+    horn_gradient,
+    normal_from_gradient,
+    slope_aspect_from_gradient,
+    sun_vector,
+)
+
+__all__ = ["SunGrids", "sun_from_dem", "METHOD"]
+
+#: Short method statement written into the sun GeoTIFF's tags.
+METHOD = ("NREL SPA solar position (pvlib); Ineichen-Perez clear sky with pvlib Linke turbidity; "
+          "Horn 1981 slope/aspect; cast shadows by a shadow-height-front sweep along the sun azimuth "
+          "over the whole DEM; beam by cosine of incidence, isotropic sky diffuse (1+cos slope)/2; "
+          "midpoint rule per time step")
+
+
+@dataclass(frozen=True, eq=False)
+class SunGrids:
+    """Sun and shade on a DEM's grid over a window.
+
+    Attributes
+    ----------
+    sun_fraction
+        Share of the window's time steps in direct sun [-], 0–1 (float32): sun above the horizon, in
+        front of the slope and not hidden by terrain.  NaN on nodata.
+    irradiation_wh_m2
+        Clear-sky irradiation on the sloping surface over the window [Wh/m²] (float32): beam on the
+        slope where sunlit plus isotropic sky diffuse.  NaN on nodata.
+    slope_deg, aspect_deg
+        Horn slope [deg] and aspect [deg, clockwise from grid north] (float32).
+    window
+        The sun positions and clear-sky irradiance used (:class:`ClearSkyWindow`).
+    grid_north_deg
+        Azimuth of grid north measured from true north at the DEM centre [deg] (positive when grid
+        north lies east of true north); sun azimuths were turned by it onto the grid.
+    transform, crs
+        The DEM's grid (``affine.Affine``) and CRS, unchanged.
+    """
+
+    sun_fraction: np.ndarray
+    irradiation_wh_m2: np.ndarray
+    slope_deg: np.ndarray
+    aspect_deg: np.ndarray
+    window: ClearSkyWindow
+    grid_north_deg: float
+    transform: object
+    crs: object
+
+    @property
+    def method(self) -> str:
+        """One-paragraph method statement (for file tags)."""
+        return METHOD
+
+
+def _metric_crs(crs):
+    from pyproj import CRS
+
+    if crs is None:
+        raise CRSError("the DEM has no CRS", where="DEM", fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
+    try:
+        c = CRS.from_user_input(crs)
+    except Exception as exc:  # pyproj raises its own CRSError type
+        raise CRSError(f"cannot read the DEM's CRS ({exc})", where="DEM", fix="give an EPSG code or WKT") from None
+    units = {ax.unit_name.lower() for ax in c.axis_info[:2]}
+    if not c.is_projected or not units <= {"metre", "meter", "m"}:
+        raise CRSError(f"the DEM's CRS {c.name!r} is not projected in metres", where="DEM",
+                       fix="read it with courseplan.io.dem.read_dem, which reprojects to the local UTM zone")
+    return c
+
+
+def _site(crs, transform, shape) -> tuple[float, float, float]:
+    """Longitude, latitude of the grid centre and the grid-north azimuth there [deg]."""
+    from pyproj import Transformer
+
+    n_rows, n_cols = shape
+    x0, y0 = transform @ (n_cols / 2.0, n_rows / 2.0)
+    to_geo = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+    to_grid = Transformer.from_crs("EPSG:4326", crs, always_xy=True)
+    lon, lat = to_geo.transform(x0, y0)
+    # Direction of true north on the grid: step 1e-4 deg (≈ 11 m) north along the meridian.
+    x1, y1 = to_grid.transform(lon, lat + 1e-4)
+    true_north_on_grid = math.degrees(math.atan2(x1 - x0, y1 - y0))
+    return float(lon), float(lat), -true_north_on_grid
+
+
+def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end: str, timezone: str,
+                 step_minutes: float = 15, nodata_mask: np.ndarray | None = None,
+                 progress: Callable[[int, int], object] | None = None) -> SunGrids:
+    """Sun fraction and clear-sky irradiation over a local time window, on a DEM's grid.
+
+    Parameters
+    ----------
+    dem
+        Elevation [m], 2-D; NaN = nodata.
+    transform
+        ``affine.Affine`` of the grid, without rotation (north-up or south-up); cell size in metres.
+    crs
+        The DEM's CRS (pyproj or rasterio CRS, EPSG code, WKT), projected in metres.  Geographic DEMs
+        are reprojected by ``courseplan.io.dem.read_dem`` first.
+    date, start, end, timezone, step_minutes
+        Race-day window: ``YYYY-MM-DD``, local ``HH:MM`` limits, IANA zone, longest step [min].
+    nodata_mask
+        Optional boolean array, True where the DEM has no data (in addition to NaN cells).
+    progress
+        Optional callable, called once per time step as ``progress(done, total)``.
+
+    Returns
+    -------
+    SunGrids
+
+    Raises
+    ------
+    CRSError
+        Missing, unreadable or non-metric CRS.
+    InputError
+        Rotated grid, wrong mask shape, or a DEM without any data.
+    SettingsError
+        Unreadable window (see :func:`courseplan.physics.solar.window_times`).
+
+    Notes
+    -----
+    The site for solar position and clear sky is the grid centre at the median DEM elevation.  Sun
+    azimuths are turned from true north onto grid north (UTM meridian convergence).  A time step
+    counts as sunlit for a cell when the sun is above the horizon, ``cos θ > 0`` on the cell's slope
+    and no terrain up-sun hides the sun; the beam ``DNI · cos θ`` is added for those steps only.
+    Working arrays are float32 and reused from step to step: peak memory is about 14 float32 grids
+    (≈ 560 MB for 10 million cells).
+    """
+    crs_m = _metric_crs(crs)
+    z = np.array(dem, dtype=np.float32, copy=True)
+    if z.ndim != 2 or min(z.shape) < 2:
+        raise InputError(f"DEM of shape {z.shape} is too small", where="DEM", fix="give at least 2 × 2 cells")
+    if nodata_mask is not None:
+        mask = np.asarray(nodata_mask, dtype=bool)
+        if mask.shape != z.shape:
+            raise InputError(f"nodata mask of shape {mask.shape} does not match the DEM {z.shape}",
+                             where="DEM")
+        z[mask] = np.nan
+    if transform.b != 0 or transform.d != 0:
+        raise InputError("the DEM grid is rotated", where="DEM",
+                         fix="warp it to a north-up grid (gdalwarp) first")
+    dx_m, dy_m = abs(float(transform.a)), abs(float(transform.e))
+    flip = transform.e > 0                                # south-up grid: row 0 at the south
+    if flip:
+        z = z[::-1]
+    nodata = np.isnan(z)
+    if nodata.all():
+        raise InputError("the DEM holds no elevation data", where="DEM", fix="check its nodata value and extent")
+    lon, lat, grid_north = _site(crs_m, transform, z.shape)
+    altitude = float(np.nanmedian(z))
+    cs = clear_sky_window(lat, lon, altitude, date, start, end, timezone, step_minutes=step_minutes)
+
+    gx, gy = horn_gradient(z, dx_m, dy_m)
+    slope, aspect = slope_aspect_from_gradient(gx, gy)
+    ne, nn, nu = normal_from_gradient(gx, gy)
+    del gx, gy
+    caster = ShadowCaster(z, dx_m, dy_m)
+    f32 = np.float32
+    lit_steps = np.zeros(z.shape, dtype=np.uint16 if cs.n_steps < 65535 else np.uint32)
+    beam = np.zeros(z.shape, dtype=f32)                  # Σ DNI cos θ over sunlit steps [W/m²]
+    cosi = np.empty(z.shape, dtype=f32)
+    tmp = np.empty(z.shape, dtype=f32)
+    shade = np.empty(z.shape, dtype=bool)
+    lit = np.empty(z.shape, dtype=bool)
+    total = cs.n_steps
+    for k in range(total):
+        zen, az, dni = float(cs.zenith_deg[k]), float(cs.azimuth_deg[k]), float(cs.dni_w_m2[k])
+        if zen < 90.0:
+            az_grid = (az - grid_north) % 360.0
+            se, sn, su = (f32(v) for v in sun_vector(zen, az_grid))
+            np.multiply(ne, se, out=cosi)                # cos θ = n · s, Eq. (1.6.3) of Duffie & Beckman
+            np.multiply(nn, sn, out=tmp)
+            cosi += tmp
+            np.multiply(nu, su, out=tmp)
+            cosi += tmp
+            caster.shadow(az_grid, 90.0 - zen, out=shade)
+            np.greater(cosi, 0, out=lit)
+            lit &= ~shade
+            lit_steps += lit
+            if dni > 0:
+                np.multiply(cosi, f32(dni), out=tmp)
+                np.multiply(tmp, lit, out=tmp)           # beam only where sunlit
+                beam += tmp
+        if progress is not None:
+            progress(k + 1, total)
+    del cosi, tmp, shade, lit, ne, nn, nu, caster
+
+    sun_fraction = lit_steps.astype(f32)
+    sun_fraction /= f32(total)
+    del lit_steps
+    irr = sky_view_isotropic(slope).astype(f32, copy=False)
+    irr *= f32(np.sum(cs.dhi_w_m2))
+    irr += beam
+    irr *= f32(cs.step_hours)
+    del beam
+    for a in (sun_fraction, irr):
+        a[nodata] = np.nan
+    if flip:
+        # back to the caller's row order; aspect is a compass azimuth and needs no change
+        sun_fraction, irr, slope, aspect = (np.ascontiguousarray(a[::-1]) for a in (sun_fraction, irr, slope, aspect))
+    return SunGrids(sun_fraction=sun_fraction, irradiation_wh_m2=irr, slope_deg=slope, aspect_deg=aspect,
+                    window=cs, grid_north_deg=grid_north, transform=transform, crs=crs)
