@@ -65,7 +65,7 @@ class Grid:
     def sample(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         """Nearest-cell values at points (NaN outside the window)."""
         inv = ~self.transform
-        col, row = inv * (np.asarray(x, float), np.asarray(y, float))
+        col, row = inv @ (np.asarray(x, float), np.asarray(y, float))
         col = np.floor(col).astype(np.int64)
         row = np.floor(row).astype(np.int64)
         rows, cols = self.shape
