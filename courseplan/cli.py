@@ -156,7 +156,9 @@ def plan_command(plan_file, out_dir, overwrite, quiet, debug, **kw):
     s, note = _with_date(s)
     con = Console(stderr=True, quiet=quiet)
     if note:
-        con.print(f"[yellow]note:[/] {note}")
+        from rich.markup import escape
+
+        con.print(f"[yellow]note:[/] {escape(note)}")
     with con.status("planning…") as status:
         result = run(s, out_dir, overwrite=overwrite, progress=lambda name: status.update(f"{name}…"))
     if not quiet:
@@ -189,8 +191,10 @@ def render_result(result, out_dir: Path) -> None:
     con.print(f"[bold]product: {tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90); "
               f"order {o.order_kg:,.0f} kg = {o.tonnes:.2f} t[/]  nitrogen {tot['nitrogen_kg']:,.1f} kg, "
               f"chloride {tot['chloride_kg']:,.1f} kg")
+    from rich.markup import escape
+
     for n in result.notes:
-        con.print(f"[yellow]note:[/] {n}")
+        con.print(f"[yellow]note:[/] {escape(n)}")
     con.print(f"written to {out_dir}/: zones.gpkg, map.html, summary.json, order.pdf, crews.pdf")
     con.print("[italic]" + result.cautions[0] + " " + result.cautions[1] + "[/]")
 

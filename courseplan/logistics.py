@@ -359,7 +359,9 @@ def split_contiguous(work: np.ndarray, n: int) -> list[tuple[int, int]]:
 
 def _hhmm(minutes: float) -> str:
     mins = int(round(minutes))
-    return f"{(mins // 60) % 24:02d}:{mins % 60:02d}"
+    day = mins // (24 * 60)
+    text = f"{(mins // 60) % 24:02d}:{mins % 60:02d}"
+    return text + (f" (+{day} d)" if day > 0 else f" ({day} d)" if day < 0 else "")
 
 
 def pass_schedule(passes: int, runs: int, first_start_min: float, window_end_min: float

@@ -173,7 +173,9 @@ class Logistics:
     price_per_kg: float | None = _f(None, "product price", unit="currency/kg", lo=0.0)
     currency: str = _f("EUR", "currency of the price")
     crews: int = _f(3, "number of crews", lo=1, hi=50)
-    spread_rate_m2_min: float = _f(40.0, "area one crew spreads per minute (hand or push spreader)",
+    spread_rate_m2_min: float = _f(150.0, "area one crew spreads per minute (hand or push spreader; "
+                                          "estimate: walking about 1 m/s with a 2.5 m throw, common "
+                                          "practice, no source)",
                                    unit="m²/min", lo=1.0, hi=10000.0)
     carry_min_per_bag: float = _f(2.0, "time to carry one bag from the depot into its zone",
                                   unit="min", lo=0.0, hi=120.0)

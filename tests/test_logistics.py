@@ -64,6 +64,8 @@ def make_zones(areas, doses, passes=None, p90_factor=1.5, order=None, n_frac=0.0
 
 
 def plan_settings(**logistics):
+    # The hand computations below assume a spreading rate of 40 m²/min unless a test sets one.
+    logistics.setdefault("spread_rate_m2_min", 40.0)
     s = PlanSettings()
     win = logistics.pop("window", None)
     s = s.replace(logistics=dataclasses.replace(s.logistics, **logistics))
