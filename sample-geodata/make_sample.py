@@ -51,8 +51,8 @@ INVENTED = ("Invented demo data: the venue 'Ulmenkar' and all terrain, course, s
 CONTROL = np.array([
     (660, 2440), (600, 2300), (640, 2150), (720, 2010), (700, 1870), (680, 1770),
     (731, 1693), (816, 1609), (901, 1524), (985, 1439),          # along the spur's north-east flank
-    (1060, 1300), (1100, 1120), (1105, 950), (1075, 780), (1095, 620), (1115, 460),
-    (1080, 300), (1050, 200),
+    (1060, 1300), (1100, 1120), (1105, 950), (1075, 780), (1095, 640), (1110, 520),
+    (1090, 400), (1065, 305),
 ], dtype=float)
 
 
@@ -97,8 +97,11 @@ def terrain(u: np.ndarray, v: np.ndarray) -> np.ndarray:
     spur, frac = _ridge(u, v, (250, 1750), (1000, 1000), 180.0, 260.0, taper=300.0)
     z += spur * (1.0 - 0.5 * frac)
     # a rock rib east of the lower course: shades the lower pitches in the morning
-    rib, _ = _ridge(u, v, (1250, 1050), (1240, 200), 190.0, 75.0, taper=250.0)
+    rib, _ = _ridge(u, v, (1250, 1050), (1240, 200), 230.0, 80.0, taper=250.0)
     z += rib
+    # a wall south of the finish: with the rib it closes a hollow whose last pitches stay in shade
+    wall, _ = _ridge(u, v, (820, 150), (1420, 180), 260.0, 65.0, taper=150.0)
+    z += wall
     # a gully along the lower-middle part of the course
     ug = 1090.0 + 25.0 * np.sin((v - 700.0) / 220.0)
     depth = 16.0 * np.clip(1.0 - np.abs(v - 800.0) / 380.0, 0.0, 1.0)
@@ -248,7 +251,7 @@ def sun_raster(dem: np.ndarray, transform, lat: float, lon: float):
     except ImportError:
         print("courseplan.sunmap not found: using the temporary stand-in", file=sys.stderr)
         return _stand_in_sun(coarse, ctr, lat, lon, RACE_DAY, *WINDOW).astype("float32"), ctr, "stand-in"
-    res = sun_from_dem(coarse, ctr, CRS, date=dt.date.fromisoformat(RACE_DAY), start=WINDOW[0],
+    res = sun_from_dem(coarse, ctr, CRS, date=RACE_DAY, start=WINDOW[0],
                        end=WINDOW[1], timezone=TIMEZONE, step_minutes=15)
     return np.asarray(res.sun_fraction, dtype="float32"), ctr, "courseplan.sunmap.sun_from_dem"
 
@@ -353,8 +356,8 @@ def main(argv: list[str] | None = None) -> int:
         7: 'gate 14 "Grat" turn, ruts starting',
         9: "gully floor, slush in the ruts",
         12: "machine-made base, injected in February",
-        15: "rib shade until about 10:30",
-        19: "finish flat, wet surface, crust broken",
+        15: "rib shade until about 10:45",
+        19: "finish hollow under the wall, in shade, refrozen crust",
     }
     rows = []
     for i, s in enumerate(s_obs):
