@@ -78,7 +78,7 @@ def loop(lwc, rho, sw, wx):
         ice = max(rho[i] * PARAMS["mix_depth_m"] - water, 0.0)
         m = PARAMS["slush_limit"] * ice
 
-        def g(t):
+        def g(t, water=water, ice=ice, m=m):
             w = w_of(t)
             sm = w * (water + m) / (1.0 - w)
             ci = CP_ICE_0C + 0.5 * CP_ICE_SLOPE * t
@@ -93,7 +93,7 @@ def loop(lwc, rho, sw, wx):
         n = max(1, math.ceil(s / smax - 1e-9)) if s > 0 else 0
         sp = s / n
 
-        def f(t):
+        def f(t, sp=sp, water=water, ice=ice):
             w = w_of(t)
             brine_kg = sp / w
             mm = brine_kg - sp - water

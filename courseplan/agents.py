@@ -190,11 +190,12 @@ _MEL = "CoolProp 8.0 fit of Melinder (2010), IIR, evaluated once and typed in"
 # CRC 'Freezing point lowering by electrolytes' rows, molality [mol/kg] → ΔT [K] [published]
 _M_COLS = (0.05, 0.10, 0.25, 0.50, 0.75, 1.00, 1.50, 2.00, 2.50, 3.00)
 CRC_MOLALITY_ROWS: dict[str, tuple[tuple[float, float], ...]] = {
-    "CaCl2": tuple(zip(_M_COLS, (0.25, 0.49, 1.27, 2.66, 4.28, 6.35, 10.78, 15.27, 20.42, 28.08))),
-    "KCl": tuple(zip(_M_COLS, (0.17, 0.35, 0.86, 1.68, 2.49, 3.29, 4.88, 6.50, 8.14, 9.77))),
-    "KNO3": tuple(zip(_M_COLS, (0.17, 0.33, 0.78, 1.47, 2.11, 2.66))),
-    "NH4Cl": tuple(zip(_M_COLS, (0.17, 0.34, 0.85, 1.70, 2.55))),
-    "NaCl": tuple(zip(_M_COLS, (0.18, 0.35, 0.85, 1.68, 2.60))),
+    "CaCl2": tuple(zip(_M_COLS, (0.25, 0.49, 1.27, 2.66, 4.28, 6.35, 10.78, 15.27, 20.42, 28.08),
+                       strict=False)),
+    "KCl": tuple(zip(_M_COLS, (0.17, 0.35, 0.86, 1.68, 2.49, 3.29, 4.88, 6.50, 8.14, 9.77), strict=False)),
+    "KNO3": tuple(zip(_M_COLS, (0.17, 0.33, 0.78, 1.47, 2.11, 2.66), strict=False)),
+    "NH4Cl": tuple(zip(_M_COLS, (0.17, 0.34, 0.85, 1.70, 2.55), strict=False)),
+    "NaCl": tuple(zip(_M_COLS, (0.18, 0.35, 0.85, 1.68, 2.60), strict=False)),
 }
 """Rows of the CRC/Smithsonian molality table [published]; also the validation tests' reference."""
 
@@ -434,7 +435,7 @@ _BUILTIN = _builtin()
 
 
 def builtin_agents() -> dict[str, Agent]:
-    """The built-in catalogue (a fresh dict; the agents are frozen)."""
+    """Return the built-in catalogue (a fresh dict; the agents are frozen)."""
     return dict(_BUILTIN)
 
 
@@ -462,7 +463,8 @@ def _convert(name: str, key: str, value: Any, where: str) -> Any:
         import difflib
         near = difflib.get_close_matches(key, AGENT_FIELDS, n=1)
         raise AgentError(f"unknown agent key {key!r}", where=w,
-                         fix=f"did you mean {near[0]!r}?" if near else f"use one of: {', '.join(AGENT_FIELDS)}")
+                         fix=(f"did you mean {near[0]!r}?" if near
+                              else f"use one of: {', '.join(AGENT_FIELDS)}"))
     if key in ("label", "formula", "note"):
         if not isinstance(value, str):
             raise AgentError(f"expected text, got {value!r}", where=w, fix="put it in quotes")
@@ -518,7 +520,7 @@ def _convert(name: str, key: str, value: Any, where: str) -> Any:
 
 
 def catalogue(overrides: Mapping[str, Any] | None = None, *, source: str = "agents file") -> dict[str, Agent]:
-    """The agent catalogue, with a user's additions and overrides merged in.
+    """Return the agent catalogue, with a user's additions and overrides merged in.
 
     Parameters
     ----------

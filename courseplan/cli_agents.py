@@ -13,12 +13,12 @@ import click
 
 
 def _rows(cat):
-    for ag in cat.values():
-        yield ag
+    yield from cat.values()
 
 
 @click.command("agents")
-@click.option("--json", "as_json", is_flag=True, help="Print the catalogue as JSON (every value with its source).")
+@click.option("--json", "as_json", is_flag=True,
+              help="Print the catalogue as JSON (every value with its source).")
 @click.option("--agents-file", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="TOML file adding or overriding agents (as [inputs] agents in a plan).")
 @click.option("--sources", is_flag=True, help="Also print the source of every value.")
@@ -42,7 +42,8 @@ def agents_command(as_json: bool, agents_file: Path | None, sources: bool) -> No
     from rich.table import Table
 
     t = Table(title="Agent catalogue", show_lines=False)
-    for col, kw in (("name", {}), ("label", {}), ("M g/mol", {"justify": "right"}), ("ions", {"justify": "right"}),
+    for col, kw in (("name", {}), ("label", {}), ("M g/mol", {"justify": "right"}),
+                    ("ions", {"justify": "right"}),
                     ("N %", {"justify": "right"}), ("Cl %", {"justify": "right"}),
                     ("eutectic °C / %", {"justify": "right"}), ("ΔsolH kJ/mol", {"justify": "right"}),
                     ("kJ/kg", {"justify": "right"}), ("purity", {"justify": "right"}),

@@ -29,8 +29,8 @@ from .physics.dose import (
     cold_balance,
     latin_hypercube,
     max_salt_per_pass_kg_m2,
-    passes_needed,
     pass_temperature_c,
+    passes_needed,
     sample_lwc_pct,
     verdicts,
 )
@@ -118,7 +118,7 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
             ids = ", ".join(str(z) for z in np.asarray(zones["zone_id"])[bad][:5])
             raise InputError(f"column {c} is empty (NaN) for zone(s) {ids}", where="dosing stage",
                              fix="fill it in the conditions/zoning stage")
-    ds, fc = settings.dosing, settings.forecast
+    ds = settings.dosing
     purity = ds.purity if ds.purity is not None else agent.purity
     out = zones.copy()
     nz = len(out)
@@ -147,12 +147,12 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
     lwc_s = sample_lwc_pct(lwc, wet, sampled & (n > 1), np.nan_to_num(u_lwc, nan=0.5))
     step_s = zone_energy_j_m2(irr, weather, ds.albedo, d_t)  # (Z, S, H)
     e_s = np.maximum(np.max(np.cumsum(step_s, axis=2), axis=2), 0.0)  # Eq. B2
-    step_nom = zone_energy_j_m2(irr, weather, ds.albedo, 0.0)[:, 0, :]
-    e_nom = np.maximum(np.max(np.cumsum(step_nom, axis=1), axis=1), 0.0)
+    step_nom = zone_energy_j_m2(irr, weather, ds.albedo, 0.0)[:, 0, :]  # nominal weather, for pass times
 
     kw = dict(depth_m=ds.depth_m, refreeze_share=ds.refreeze_share, brine_exit_temp_c=ds.brine_exit_temp_c,
               mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit, purity=purity)
-    cb_s = cold_balance(agent, lwc_s, np.broadcast_to(rho[:, None], lwc_s.shape), e_s, with_passes=False, **kw)
+    rho_s = np.broadcast_to(rho[:, None], lwc_s.shape)
+    cb_s = cold_balance(agent, lwc_s, rho_s, e_s, with_passes=False, **kw)
     prod_s = np.asarray(cb_s.product_g_m2, dtype=float).reshape(nz, -1)
     x_s = np.asarray(cb_s.water_to_remove_kg_m2, dtype=float).reshape(nz, -1)
     dose50 = np.percentile(prod_s, 50, axis=1)
@@ -164,11 +164,12 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
     # ---- passes at the nominal state for the P50 dose ----
     xw = agent.crystal_water_fraction / purity
     salt50 = dose50 / 1000.0 * purity
-    smax = np.asarray(max_salt_per_pass_kg_m2(agent, lwc, rho, ds.mix_depth_m, ds.slush_limit, xw), dtype=float)
-    smax = np.atleast_1d(smax)
+    smax = max_salt_per_pass_kg_m2(agent, lwc, rho, ds.mix_depth_m, ds.slush_limit, xw)
+    smax = np.atleast_1d(np.asarray(smax, dtype=float))
     npass = np.atleast_1d(np.asarray(passes_needed(salt50, smax)))
     per = np.where(npass > 0, salt50 / np.maximum(npass, 1), 0.0)
-    tpass = np.atleast_1d(np.asarray(pass_temperature_c(agent, per, lwc, rho, ds.mix_depth_m, xw), dtype=float))
+    tpass = np.atleast_1d(np.asarray(pass_temperature_c(agent, per, lwc, rho, ds.mix_depth_m, xw),
+                                     dtype=float))
 
     verdict = verdicts(lwc, rho, ts, out["grain"].astype(str).to_numpy(), x50, npass,
                        lwc_min_pct=ds.lwc_min_pct, lwc_max_pct=ds.lwc_max_pct,
@@ -210,11 +211,14 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
             lw = f"θ {lwc[i]:.1f} % ({src[i]})"
         rows.append(
             f"{lw}; ρ {rho[i]:.0f} kg/m³, T_s {ts[i]:.1f} °C, grain {out['grain'].iat[i]} ({src[i]}); "
-            f"sun {irr[i]:.0f} Wh/m² clear-sky on the slope (sun/shade raster), albedo {ds.albedo:.2f} (setting); "
+            f"sun {irr[i]:.0f} Wh/m² clear-sky on the slope (sun/shade raster), "
+            f"albedo {ds.albedo:.2f} (setting); "
             f"weather {wline}; shortwave shares: {weather.sw_share_source}; "
-            f"T_b {ds.brine_exit_temp_c:.1f} °C{cal}, k_f {ds.refreeze_share:.2f}{cal}, depth {ds.depth_m:.3f} m, "
+            f"T_b {ds.brine_exit_temp_c:.1f} °C{cal}, k_f {ds.refreeze_share:.2f}{cal}, "
+            f"depth {ds.depth_m:.3f} m, "
             f"mix {ds.mix_depth_m:.3f} m, slush limit {ds.slush_limit:.2f} (settings); "
-            f"agent {agent.name} purity {purity:.2f} ({'setting' if ds.purity is not None else 'catalogue'}); "
+            f"agent {agent.name} purity {purity:.2f} "
+            f"({'setting' if ds.purity is not None else 'catalogue'}); "
             f"{n} samples, seed {ds.seed}")
     out["dose_inputs"] = rows
     return out

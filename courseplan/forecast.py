@@ -228,7 +228,8 @@ def weather_from_table(df: pd.DataFrame, settings, clear_sky_profile: Any = None
     w0, w1 = start[0].as_unit("ns").value / 1e9, end[-1].as_unit("ns").value / 1e9
     gap = max_gap_h * 3600.0
     if t_sec[0] > w0 + gap or t_sec[-1] < w1 - gap:
-        raise InputError(f"the forecast covers {times.min():%Y-%m-%d %H:%M}–{times.max():%H:%M} but the window "
+        raise InputError(f"the forecast covers {times.min():%Y-%m-%d %H:%M}–{times.max():%H:%M} "
+                         f"but the window "
                          f"is {start[0]:%Y-%m-%d %H:%M}–{end[-1]:%H:%M} ({tz})", where=source,
                          fix="give forecast rows for the whole hold window and the race date")
     mid = (start.as_unit("ns").asi8 / 1e9 + end.as_unit("ns").asi8 / 1e9) / 2.0

@@ -29,7 +29,8 @@ def test_layer_water_ice():
 
 
 def test_passes_needed():
-    np.testing.assert_array_equal(D.passes_needed([0.1, 0.25, 0.0, 0.3], [0.1, 0.1, 0.1, math.inf]), [1, 3, 0, 1])
+    n = D.passes_needed([0.1, 0.25, 0.0, 0.3], [0.1, 0.1, 0.1, math.inf])
+    np.testing.assert_array_equal(n, [1, 3, 0, 1])
 
 
 def test_max_salt_per_pass_meets_slush_limit():

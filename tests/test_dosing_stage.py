@@ -27,7 +27,8 @@ def _zones(**over):
         density_kg_m3=[560.0, 560.0, 560.0, 560.0, 560.0, 300.0],
         snow_temp_c=[0.0, 0.0, 0.0, -1.0, 0.0, 0.0],
         grain=["RG", "MF", "MF", "RG", "MF", "PP"],
-        snow_source=["class-default", "class-default", "observation", "observation", "class-default", "nearby"],
+        snow_source=["class-default", "class-default", "observation", "observation", "class-default",
+                     "nearby"],
     )
     base.update(over)
     return pd.DataFrame(base)
@@ -39,7 +40,8 @@ def _settings(**dosing):
 
 def _run(zones=None, settings=None, agent="NaCl"):
     st = settings or _settings()
-    return apply_dosing(zones if zones is not None else _zones(), st, get_agent(agent), weather_from_settings(st))
+    z = zones if zones is not None else _zones()
+    return apply_dosing(z, st, get_agent(agent), weather_from_settings(st))
 
 
 def test_all_declared_columns_added_and_input_kept():

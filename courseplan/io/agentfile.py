@@ -62,7 +62,7 @@ def read_agents_file(path: str | Path) -> dict[str, Any]:
 
 
 def load_catalogue(path: str | Path | None):
-    """The catalogue with the agents file at ``path`` merged in (built-in only when None)."""
+    """Return the catalogue with the agents file at ``path`` merged in (built-in only when None)."""
     from courseplan.agents import catalogue
 
     if path is None:

@@ -117,10 +117,11 @@ def read_forecast_csv(path: str | Path) -> pd.DataFrame:
             seen.setdefault(t, ln)
     if problems:
         more = f" (and {len(problems) - _MAX_LISTED} more)" if len(problems) > _MAX_LISTED else ""
-        raise InputError(f"{len(problems)} problem(s) in the forecast: " + "; ".join(problems[:_MAX_LISTED]) + more,
+        listed = "; ".join(problems[:_MAX_LISTED]) + more
+        raise InputError(f"{len(problems)} problem(s) in the forecast: {listed}",
                          where=str(p), fix="correct the rows named")
     if aware == {True}:
-        tcol = pd.DatetimeIndex(pd.to_datetime([t.astimezone(dt.timezone.utc) for t in times], utc=True))
+        tcol = pd.DatetimeIndex(pd.to_datetime([t.astimezone(dt.UTC) for t in times], utc=True))
     else:
         tcol = pd.DatetimeIndex(pd.to_datetime(times))
     df = pd.DataFrame({"time": tcol, **values}).sort_values("time").reset_index(drop=True)

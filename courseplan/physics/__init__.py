@@ -1,5 +1,6 @@
-"""Pure, vectorised physics: brine thermodynamics (Part A), surface energy balance (Part B), dose,
-passes, verdicts, calibration and sampling (Parts C–E), solar position and terrain.
+"""Pure, vectorised physics for the planner.
 
-No files, no printing; every function accepts scalars and numpy arrays.
+Brine thermodynamics (Part A), surface energy balance (Part B), dose, passes, verdicts, calibration
+and sampling (Parts C–E), solar position and terrain.  No files, no printing; every function accepts
+scalars and numpy arrays.
 """

@@ -288,7 +288,8 @@ def _residual_liquidus(c: _Curve, q: float, t, s, ice, water):
     dcb = (_CB1 + 2.0 * _CB2 * w) * wp
     heat = ci * (ice - m) + cb * brine
     f = L_FUSION * m + q * s + heat * t
-    df = L_FUSION * dbrine + (0.5 * CP_ICE_SLOPE * (ice - m) - ci * dbrine + dcb * brine + cb * dbrine) * t + heat
+    df = (L_FUSION * dbrine + heat
+          + (0.5 * CP_ICE_SLOPE * (ice - m) - ci * dbrine + dcb * brine + cb * dbrine) * t)
     return f, df, m, brine, w
 
 
@@ -485,7 +486,8 @@ def _salt_for_melt_flat(c: _Curve, q: float, xw: float, mm, ice, water):
         cb = CP_WATER + w * (_CB1 + _CB2 * w)
         heat = ci * ice_left + cb * brine
         f = lm + q * s + heat * t
-        df = q * sp + (0.5 * CP_ICE_SLOPE * ice_left + (_CB1 + 2.0 * _CB2 * w) * wp * brine + cb * k * sp) * t + heat
+        df = (q * sp + heat
+              + (0.5 * CP_ICE_SLOPE * ice_left + (_CB1 + 2.0 * _CB2 * w) * wp * brine + cb * k * sp) * t)
         return f, df, s
 
     te = c.t_eut

@@ -138,7 +138,7 @@ def max_salt_per_pass_kg_m2(agent, lwc_pct, density_kg_m3, mix_depth_m, slush_li
 
 
 def passes_needed(salt_kg_m2, max_salt_per_pass_kg_m2):
-    """Passes n = ⌈s*/s_max⌉, at least 1 (Eq. C3); 0 where there is no dose."""
+    """Count the passes n = ⌈s*/s_max⌉, at least 1 (Eq. C3); 0 where there is no dose."""
     s = np.asarray(salt_kg_m2, dtype=float)
     smax = np.asarray(max_salt_per_pass_kg_m2, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -188,7 +188,7 @@ class ColdBalance:
 def cold_balance(agent, lwc_pct, density_kg_m3, energy_in_j_m2, *, depth_m=0.04, refreeze_share=0.5,
                  brine_exit_temp_c=-2.0, mix_depth_m=0.01, slush_limit=0.10, purity=None,
                  with_passes: bool = True) -> ColdBalance:
-    """The whole cold balance of Parts B–C for arrays of zone states.
+    """Compute the whole cold balance of Parts B–C for arrays of zone states.
 
     Parameters
     ----------
@@ -339,7 +339,8 @@ def calibrate_patch(agent, *, lwc_pct: float, dose_g_m2: float, energy_in_mj_m2:
     """
     ag = get_agent(agent)
     if fit not in ("brine_exit_temp_c", "refreeze_share"):
-        raise InputError(f"cannot fit {fit!r}", where="calibration", fix="fit brine_exit_temp_c or refreeze_share")
+        raise InputError(f"cannot fit {fit!r}", where="calibration",
+                         fix="fit brine_exit_temp_c or refreeze_share")
     bounds = {"just-held": "equal", "held": "upper", "soft": "lower"}
     if outcome not in bounds:
         raise InputError(f"unknown patch outcome {outcome!r}", where="calibration",

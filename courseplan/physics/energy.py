@@ -134,7 +134,8 @@ def clear_sky_emissivity(air_temp_c, vapour_pa):
 def incoming_longwave_w_m2(air_temp_c, vapour_pa, cloud_fraction):
     """Incoming longwave radiation ε_a·σ·T_a⁴ with the cloud factor (1 + 0.22·N²), ε_a ≤ 1 [W/m²]."""
     n = np.clip(np.asarray(cloud_fraction, dtype=float), 0.0, 1.0)
-    eps = np.minimum(np.asarray(clear_sky_emissivity(air_temp_c, vapour_pa)) * (1.0 + CLOUD_LW_K * n * n), 1.0)
+    eps_cs = np.asarray(clear_sky_emissivity(air_temp_c, vapour_pa))
+    eps = np.minimum(eps_cs * (1.0 + CLOUD_LW_K * n * n), 1.0)
     t = np.asarray(air_temp_c, dtype=float) + T0_K
     return _out(eps * SIGMA * t**4)
 
@@ -152,7 +153,8 @@ def _air_density(air_temp_c, pressure_pa):
 def sensible_heat_w_m2(air_temp_c, wind_m_s, pressure_pa=85000.0, transfer_coeff=TRANSFER_COEFF):
     """Bulk sensible heat flux to a 0 °C surface, ρ_a c_p C_H u (T_a − 0) [W/m²] (+ into the snow)."""
     ta = np.asarray(air_temp_c, dtype=float)
-    return _out(_air_density(ta, pressure_pa) * CP_AIR * transfer_coeff * np.asarray(wind_m_s, dtype=float) * ta)
+    u = np.asarray(wind_m_s, dtype=float)
+    return _out(_air_density(ta, pressure_pa) * CP_AIR * transfer_coeff * u * ta)
 
 
 def latent_heat_w_m2(air_temp_c, rh_pct, wind_m_s, pressure_pa=85000.0, transfer_coeff=TRANSFER_COEFF):
@@ -169,7 +171,7 @@ def latent_heat_w_m2(air_temp_c, rh_pct, wind_m_s, pressure_pa=85000.0, transfer
 
 def weather_flux_w_m2(air_temp_c, rh_pct, wind_m_s, cloud_fraction, pressure_pa=85000.0,
                       transfer_coeff=TRANSFER_COEFF):
-    """The weather-only part of (B1): longwave in − out + sensible + latent [W/m²].
+    """Compute the weather-only part of (B1): longwave in − out + sensible + latent [W/m²].
 
     Does not depend on the zone, so it is computed once per forecast step and sample.
     """
@@ -197,7 +199,8 @@ def net_flux_w_m2(shortwave_w_m2, air_temp_c, rh_pct, wind_m_s, cloud_fraction, 
     """
     sw = (1.0 - np.asarray(albedo, dtype=float)) * np.asarray(shortwave_w_m2, dtype=float) \
         * cloud_shortwave_factor(cloud_fraction)
-    return _out(sw + weather_flux_w_m2(air_temp_c, rh_pct, wind_m_s, cloud_fraction, pressure_pa, transfer_coeff))
+    wx = weather_flux_w_m2(air_temp_c, rh_pct, wind_m_s, cloud_fraction, pressure_pa, transfer_coeff)
+    return _out(sw + wx)
 
 
 def energy_income_j_m2(step_energy_j_m2, axis: int = -1):
