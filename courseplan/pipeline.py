@@ -22,6 +22,11 @@ from .grid import Grid
 from .settings import PlanSettings
 
 
+PRACTICE_HIGH_G_M2 = 150.0
+"""Upper end of reported alpine doses per pass, 50–150 g/m² [from memory, domain-data §7]: a
+plausibility flag only, never a limit on the computed dose."""
+
+
 @dataclass(frozen=True)
 class LoadedInputs:
     """Inputs read by the io layer, all in the one working CRS.
@@ -230,6 +235,11 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     else:
         weather = weather_from_settings(settings, cs)
     zones = apply_dosing(zones, settings, agent, weather)
+    high = zones["dose_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
+    if high.any() and not getattr(settings.dosing, "calibrated", None):
+        notes.append(f"{int(high.sum())} zone(s) get more than {PRACTICE_HIGH_G_M2:.0f} g/m², above the doses the "
+                     "trade reports; the model is not calibrated for this hill yet: treat a test patch, fit "
+                     "the model to it ([dosing] calibrated) and check the inputs before ordering")
 
     step("logistics")
     log = plan_logistics(gpd.GeoDataFrame(zones, geometry="geometry", crs=inputs.crs), settings, agent)
