@@ -246,8 +246,9 @@ class ShadowCaster:
     The grid is swept line by line away from the sun, along whichever grid axis lies closer to the
     sun's azimuth (light enters through one edge and leaves through the opposite one).  Every cell
     belongs to exactly one discrete ray of light: in sweep line ``i`` the ray ``k`` sits at lateral
-    index ``k + round(i·s)``, where ``s`` is the ray's lateral drift per line, so a ray never drifts
-    from the true sun direction by more than half a cell and nothing is blurred by interpolation.
+    index ``k + round(i·s)``, where ``s`` is the ray's lateral drift per line: a discrete ray stays
+    within half a cell of a straight line in the sun's direction (so a shadow lies within one cell of
+    the true line through the cell casting it) and nothing is blurred by interpolation.
     For each ray the sweep carries the height ``H`` of the shadow surface cast by the terrain
     already passed: moving one line down-sun, ``H ← H − Δ·tan(e)`` (``Δ`` the horizontal distance
     per line along the ray, ``e`` the sun's elevation); the cell is in shadow when ``H > z``; then
