@@ -174,7 +174,7 @@ class ContextImage:
         return (min(ys), min(xs)), (max(ys), max(xs))
 
     def png_data_uri(self) -> str:
-        """The picture as a ``data:image/png;base64,...`` URI (Pillow encoder)."""
+        """Encode the picture as a ``data:image/png;base64,...`` URI (Pillow encoder)."""
         from PIL import Image
 
         arr = np.ascontiguousarray(self.rgba, dtype=np.uint8)
@@ -545,7 +545,8 @@ function table(rows){var t=el("table"); rows.forEach(function(r){var tr=el("tr")
 function zonePopup(p){var d=el("div","pop"); d.appendChild(el("h3",null,"Zone "+p.id+" \u2014 "+p.verdict));
   p.sections.forEach(function(s){d.appendChild(el("h4",null,s[0])); d.appendChild(table(s[1]));}); return d;}
 function obsPopup(p){var d=el("div","pop"); d.appendChild(el("h3",null,"Observation "+p.id));
-  d.appendChild(table(p.rows)); if(p.note){d.appendChild(el("h4",null,"note")); d.appendChild(el("div","note",p.note));}
+  d.appendChild(table(p.rows));
+  if(p.note){d.appendChild(el("h4",null,"note")); d.appendChild(el("div","note",p.note));}
   return d;}
 var map = L.map("map", {zoomSnap:0.25, attributionControl:false, preferCanvas:false});
 L.control.scale({imperial:false, maxWidth:160}).addTo(map);
@@ -558,7 +559,8 @@ function zoneLayer(colourKey, register){
   return L.geoJSON(D.zones, {
     style:function(f){return {color:"#3b3f3a", weight:0.7, opacity:0.9, fillColor:f.properties[colourKey],
                               fillOpacity:D.fillOpacity};},
-    onEachFeature:function(f, layer){layer.bindPopup(function(){return zonePopup(f.properties);}, {maxWidth:320});
+    onEachFeature:function(f, layer){
+      layer.bindPopup(function(){return zonePopup(f.properties);}, {maxWidth:320});
       if(register){byZone[String(f.properties.id)] = layer;}}
   });
 }
@@ -569,7 +571,8 @@ if (D.course){ L.geoJSON(D.course, {interactive:false, style:function(){return {
   fill:false, dashArray:null};}}).addTo(course); }
 [["start","Start","#1a7f37"],["finish","Finish","#b3261e"]].forEach(function(s){
   if (D[s[0]]){ L.circleMarker(D[s[0]], {radius:7, color:"#fff", weight:2, fillColor:s[2], fillOpacity:1})
-    .bindTooltip(el("span",null,s[1]), {permanent:true, direction:"right", className:"lbl"}).addTo(course);}});
+    .bindTooltip(el("span",null,s[1]), {permanent:true, direction:"right", className:"lbl"})
+    .addTo(course);}});
 course.addTo(map); overlays["Course, start and finish"] = course;
 if (D.crews){
   var crews = L.geoJSON(D.crews, {
@@ -583,7 +586,8 @@ if (D.obs){
   var obs = L.geoJSON(D.obs, {
     pointToLayer:function(f, ll){return L.circleMarker(ll, {radius:6, color:"#1b2f4a", weight:2,
       fillColor:f.properties.colour, fillOpacity:1});},
-    onEachFeature:function(f, layer){layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:300});
+    onEachFeature:function(f, layer){
+      layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:300});
       byObs[String(f.properties.id)] = layer;}
   });
   obs.addTo(map); overlays["Observations"] = obs;
@@ -692,7 +696,8 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
         cg = _to_lonlat(simplify_for_display(cm.geometry.values, tol), cm.crs) if len(cm) else []
         kg = _to_lonlat(simplify_for_display(crm.geometry.values, tol), crm.crs) if crm is not None else []
         zfc = {"type": "FeatureCollection", "features": [
-            {"type": "Feature", "properties": p, "geometry": _geom_json(g)} for p, g in zip(zprops, zg)]}
+            {"type": "Feature", "properties": p, "geometry": _geom_json(g)}
+            for p, g in zip(zprops, zg, strict=True)]}
         cfc = {"type": "FeatureCollection", "features": [
             {"type": "Feature", "properties": {}, "geometry": _geom_json(g)} for g in cg]}
         size = (len(json.dumps([f["geometry"] for f in zfc["features"]]))
@@ -704,7 +709,8 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
     data: dict[str, Any] = {"zones": zfc, "course": cfc if cg else None, "fillOpacity": ZONE_FILL_OPACITY}
     if crm is not None:
         feats = []
-        for i, (row, g) in enumerate(zip(crews.drop(columns=crews.geometry.name).to_dict("records"), kg)):
+        crew_rows = crews.drop(columns=crews.geometry.name).to_dict("records")
+        for i, (row, g) in enumerate(zip(crew_rows, kg, strict=True)):
             crew = _scalar(row.get("crew"))
             label = _scalar(row.get("label"))
             feats.append({"type": "Feature", "geometry": _geom_json(g), "properties": {
@@ -715,7 +721,8 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
     if observations is not None and len(observations):
         om = observations.to_crs(4326) if observations.crs is not None else observations
         feats = []
-        for row, g in zip(om.drop(columns=om.geometry.name).to_dict("records"), om.geometry.values):
+        obs_rows = om.drop(columns=om.geometry.name).to_dict("records")
+        for row, g in zip(obs_rows, om.geometry.values, strict=True):
             vals = {k: _scalar(v) for k, v in row.items()}
             note = vals.pop("note", None)
             oid = vals.get("obs_id")
@@ -740,7 +747,8 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
             data[key] = [round(lat, 7), round(lon, 7)]
     if context is not None:
         (s, w), (n, e) = context.latlon_bounds()
-        data["context"] = {"uri": context.png_data_uri(), "bounds": [[s, w], [n, e]], "opacity": CONTEXT_OPACITY,
+        data["context"] = {"uri": context.png_data_uri(), "bounds": [[s, w], [n, e]],
+                           "opacity": CONTEXT_OPACITY,
                            "name": "Context: " + ("sun and shade" if context.kind == "sun" else "terrain")}
     allg = [g for g in list(zg) + list(cg) if g is not None and not g.is_empty]
     minx, miny, maxx, maxy = gpd.GeoSeries(allg).total_bounds
@@ -751,7 +759,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
     dose_unit = esc((units or {}).get("dose_g_m2", _columns.unit("dose_g_m2")) or "g/m²")
     legend = ['<div class="legend" id="legend">', f"<h2>Dose (P50, {dose_unit})</h2>"]
     lo = 0.0
-    for c, hi in zip(DOSE_COLOURS, breaks):
+    for c, hi in zip(DOSE_COLOURS, breaks, strict=False):
         legend.append(f'<div class="row"><span class="sw" style="background:{c}"></span>'
                       f"{_fmt_edge(lo)} – {_fmt_edge(hi)} {dose_unit}</div>")
         lo = hi

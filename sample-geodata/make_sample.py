@@ -21,15 +21,14 @@ import argparse
 import csv
 import datetime as dt
 import json
-import sys
 from pathlib import Path
 
 import numpy as np
 import rasterio
+import shapely
 from pyproj import Transformer
 from rasterio.transform import from_origin
-from shapely.geometry import LineString, Point, Polygon, mapping
-import shapely
+from shapely.geometry import LineString, Polygon, mapping
 
 HERE = Path(__file__).resolve().parent
 SEED = 20270318
@@ -71,7 +70,7 @@ def _smooth_noise(u: np.ndarray, v: np.ndarray, rng: np.random.Generator, n: int
 
 
 def _ridge(u, v, a, b, height, half_width, taper=200.0):
-    """A ridge of Gaussian cross-section along the segment a→b, fading out past its ends."""
+    """Return a ridge of Gaussian cross-section along the segment a→b, fading out past its ends."""
     a, b = np.asarray(a, float), np.asarray(b, float)
     d = b - a
     L = np.hypot(*d)
@@ -193,66 +192,15 @@ def _sample(dem: np.ndarray, pts_local: np.ndarray) -> np.ndarray:
 
 # ----------------------------------------------------------------------------- sun
 
-def _stand_in_sun(dem, transform, lat, lon, date, start, end, step_minutes=15):
-    """Temporary stand-in for courseplan.sunmap.sun_from_dem (cast shadows by ray marching).
+def sun_raster(dem: np.ndarray, transform):
+    """Sun share of the hold window on the SUN_CELL grid, from ``courseplan.sunmap.sun_from_dem``."""
+    from courseplan.sunmap import sun_from_dem
 
-    Solar position: NOAA low-accuracy formulas (declination, equation of time), good to ~0.5°.
-    Used only while courseplan.sunmap does not exist; the committed sun.tif must come from
-    ``sun_from_dem``.
-    """
-    cell = transform.a
-    day = dt.date.fromisoformat(date)
-    doy = day.timetuple().tm_yday
-    g = 2 * np.pi / 365 * (doy - 1)
-    decl = (0.006918 - 0.399912 * np.cos(g) + 0.070257 * np.sin(g) - 0.006758 * np.cos(2 * g)
-            + 0.000907 * np.sin(2 * g) - 0.002697 * np.cos(3 * g) + 0.00148 * np.sin(3 * g))
-    eot = 229.18 * (0.000075 + 0.001868 * np.cos(g) - 0.032077 * np.sin(g)
-                    - 0.014615 * np.cos(2 * g) - 0.040849 * np.sin(2 * g))
-    h0, m0 = map(int, start.split(":"))
-    h1, m1 = map(int, end.split(":"))
-    times = np.arange(h0 * 60 + m0, h1 * 60 + m1 + 1e-9, step_minutes)
-    lit = np.zeros(dem.shape)
-    rows, cols = dem.shape
-    gy, gx = np.gradient(dem, cell)
-    for tmin in times:
-        solar_min = tmin - 60 + eot + 4 * lon        # UTC+1
-        ha = np.radians(solar_min / 4 - 180)
-        la = np.radians(lat)
-        cosz = np.sin(la) * np.sin(decl) + np.cos(la) * np.cos(decl) * np.cos(ha)
-        zen = np.arccos(cosz)
-        az = np.arctan2(np.sin(ha), np.cos(ha) * np.sin(la) - np.tan(decl) * np.cos(la)) + np.pi
-        elev = np.pi / 2 - zen
-        # surface faces the sun?
-        sx, sy, sz = np.sin(az) * np.cos(elev), np.cos(az) * np.cos(elev), np.sin(elev)
-        # row index grows southward: gradient along rows is -dz/dnorth
-        facing = (-gx * sx + gy * sy + sz) > 0
-        shadow = np.zeros(dem.shape, bool)
-        dx, dy = np.sin(az), -np.cos(az)           # toward the sun in (col, row)
-        tan_e = np.tan(elev)
-        for k in range(1, 400):
-            oc, orow = int(round(k * dx)), int(round(k * dy))
-            if abs(oc) >= cols or abs(orow) >= rows:
-                break
-            dist = k * cell
-            src = dem[max(orow, 0):rows + min(orow, 0), max(oc, 0):cols + min(oc, 0)]
-            dst = (slice(max(-orow, 0), rows + min(-orow, 0)), slice(max(-oc, 0), cols + min(-oc, 0)))
-            shadow[dst] |= src > dem[dst] + dist * tan_e
-        lit += facing & ~shadow
-    return lit / len(times)
-
-
-def sun_raster(dem: np.ndarray, transform, lat: float, lon: float):
-    """Sun share of the hold window on the SUN_CELL grid, from sun_from_dem (or the stand-in)."""
     f = int(SUN_CELL / CELL)
     coarse = dem.reshape(dem.shape[0] // f, f, dem.shape[1] // f, f).mean(axis=(1, 3))
     ctr = from_origin(transform.c, transform.f, SUN_CELL, SUN_CELL)
-    try:
-        from courseplan.sunmap import sun_from_dem
-    except ImportError:
-        print("courseplan.sunmap not found: using the temporary stand-in", file=sys.stderr)
-        return _stand_in_sun(coarse, ctr, lat, lon, RACE_DAY, *WINDOW).astype("float32"), ctr, "stand-in"
-    res = sun_from_dem(coarse, ctr, CRS, date=RACE_DAY, start=WINDOW[0],
-                       end=WINDOW[1], timezone=TIMEZONE, step_minutes=15)
+    res = sun_from_dem(coarse, ctr, CRS, date=RACE_DAY, start=WINDOW[0], end=WINDOW[1],
+                       timezone=TIMEZONE, step_minutes=15)
     return np.asarray(res.sun_fraction, dtype="float32"), ctr, "courseplan.sunmap.sun_from_dem"
 
 
@@ -266,12 +214,14 @@ def write_tif(path: Path, arr: np.ndarray, transform, description: str, band_nam
                    blockysize=256, compress="deflate", predictor=3, zlevel=9)
     with rasterio.open(path, "w", **profile) as dst:
         dst.write(arr.astype("float32"), 1)
-        dst.update_tags(TIFFTAG_IMAGEDESCRIPTION=description, SOURCE="courseplan sample-geodata/make_sample.py")
+        dst.update_tags(TIFFTAG_IMAGEDESCRIPTION=description,
+                        SOURCE="courseplan sample-geodata/make_sample.py")
         dst.set_band_description(1, band_name)
         dst.set_band_unit(1, units)
 
 
 def write_geojson(path: Path, features: list[dict], name: str) -> None:
+    """Write a GeoJSON FeatureCollection (WGS84) with the invented-data description."""
     fc = {"type": "FeatureCollection", "name": name, "description": INVENTED, "features": features}
     path.write_text(json.dumps(fc, indent=1) + "\n", encoding="utf-8")
 
@@ -285,6 +235,7 @@ def _round_coords(geom_mapping: dict, nd: int = 7) -> dict:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Write every sample file into the output folder."""
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--out", type=Path, default=HERE, help="output folder (default: beside this script)")
     ap.add_argument("--check", action="store_true", help="print statistics along the course")
@@ -293,7 +244,6 @@ def main(argv: list[str] | None = None) -> int:
     out.mkdir(parents=True, exist_ok=True)
 
     to_wgs = Transformer.from_crs(CRS, "EPSG:4326", always_xy=True)
-    lon_c, lat_c = to_wgs.transform(X0 + WIDTH_M / 2, Y0 + HEIGHT_M / 2)
 
     # --- DEM
     nx, ny = int(WIDTH_M / CELL), int(HEIGHT_M / CELL)
@@ -333,7 +283,7 @@ def main(argv: list[str] | None = None) -> int:
     }], "ulmenkar_centreline")
 
     # --- sun
-    sun, sun_tr, sun_source = sun_raster(dem, transform, lat_c, lon_c)
+    sun, sun_tr, sun_source = sun_raster(dem, transform)
     write_tif(out / "sun.tif", sun, sun_tr,
               INVENTED + f" Share of the hold window {WINDOW[0]}-{WINDOW[1]} ({TIMEZONE}) on {RACE_DAY} "
               f"in direct sun, computed from terrain.tif (averaged to {SUN_CELL:g} m) with {sun_source}.",
@@ -382,7 +332,8 @@ def main(argv: list[str] | None = None) -> int:
         instrument = i % 3 != 2                 # two in three by a dielectric probe
         grain = "MM" if 11 <= i <= 14 else ("MF" if f > 0.45 or lwc > 3 else "RG")
         temp = 0.0 if lwc > 0.8 else round(-rng.uniform(0.3, 1.5), 1)
-        dens = round(float(np.clip(520 + 60 * (grain == "MM") + 40 * f + rng.normal(0, 15), 470, 640)) / 5) * 5
+        dens = np.clip(520 + 60 * (grain == "MM") + 40 * f + rng.normal(0, 15), 470, 640)
+        dens = round(float(dens) / 5) * 5
         hard = int(np.clip(round(4.2 - 0.35 * lwc + rng.normal(0, 0.4)), 1, 5))
         lon, lat = to_wgs.transform(x + X0, y + Y0)
         rows.append({
@@ -472,7 +423,8 @@ margin_pct = 10.0
         print(f"deepest piste cut {deepest_cut:.1f} m")
         print(f"uphill steps along the centreline: {(np.diff(z_c) > 0).sum()} of {len(z_c) - 1}, "
               f"max rise {np.diff(z_c).max():.2f} m")
-        print(f"sun source: {sun_source}; sun fraction on the course: mean {sun_at(c_local[:, 0], c_local[:, 1]).mean():.2f}")
+        mean_sun = sun_at(c_local[:, 0], c_local[:, 1]).mean()
+        print(f"sun source: {sun_source}; sun fraction on the course: mean {mean_sun:.2f}")
         s = np.concatenate([[0], np.cumsum(seg)])
         for k in range(0, len(c_local), 20):
             print(f"  s={s[k]:6.0f} m  z={z_c[k]:6.0f}  slope={slope[k]:4.1f}°  aspect={aspect[k]:5.0f}°  "

@@ -31,7 +31,8 @@ class Chromium:
         cmd = [str(CHROMIUM), *_FLAGS, f"--user-data-dir={profile}", *args]
         return subprocess.run(cmd, capture_output=True, timeout=timeout, check=False)
 
-    def screenshot(self, html: Path, png: Path, size: tuple[int, int] = (1200, 900), fragment: str = "") -> Path:
+    def screenshot(self, html: Path, png: Path, size: tuple[int, int] = (1200, 900),
+                   fragment: str = "") -> Path:
         """Render *html* (optionally with ``#fragment``) to *png* at the window *size*."""
         url = Path(html).resolve().as_uri() + (f"#{fragment}" if fragment else "")
         res = self._run([f"--window-size={size[0]},{size[1]}", f"--screenshot={png}", url])
@@ -41,7 +42,7 @@ class Chromium:
         return Path(png)
 
     def dump_dom(self, html: Path, fragment: str = "", size: tuple[int, int] = (1200, 900)) -> str:
-        """The page's DOM as HTML after its scripts ran."""
+        """Return the page's DOM as HTML after its scripts ran."""
         url = Path(html).resolve().as_uri() + (f"#{fragment}" if fragment else "")
         res = self._run([f"--window-size={size[0]},{size[1]}", "--dump-dom", url])
         if res.returncode != 0:

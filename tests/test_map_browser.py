@@ -42,7 +42,8 @@ def _page(tmp_path, **kw):
 
 
 def _blend(hex_colour: str, alpha: float, under: str) -> np.ndarray:
-    return alpha * np.array(wm._hex_rgb(hex_colour), float) + (1 - alpha) * np.array(wm._hex_rgb(under), float)
+    top, bottom = np.array(wm._hex_rgb(hex_colour), float), np.array(wm._hex_rgb(under), float)
+    return alpha * top + (1 - alpha) * bottom
 
 
 def test_map_renders_with_zone_colours(tmp_path, chromium):

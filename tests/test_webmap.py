@@ -223,7 +223,7 @@ def test_format_value(value, unit, kind, text):
 # --------------------------------------------------------------------------- size and simplification
 
 def _staircase_course(length_m: float = 3000.0, width_m: float = 50.0, cell: float = 0.5):
-    """A winding 3 km course polygonised from a 0.5 m label raster (staircase edges, many vertices)."""
+    """Make a winding 3 km course polygonised from a 0.5 m label raster (staircase edges, many vertices)."""
     from rasterio import features
     from shapely.geometry import shape
 
@@ -259,7 +259,7 @@ def test_three_km_course_map_under_one_megabyte():
     # display geometry stays close to the plan's: an edge moves by about the tolerance at most,
     # so a zone's area changes by less than tolerance × perimeter
     tr = Transformer.from_crs("EPSG:4326", UTM, always_xy=True)
-    for f, g in zip(data["zones"]["features"], zones.geometry):
+    for f, g in zip(data["zones"]["features"], zones.geometry, strict=True):
         ring = np.array(f["geometry"]["coordinates"][0])
         x, y = tr.transform(ring[:, 0], ring[:, 1])
         assert abs(Polygon(np.column_stack([x, y])).area - g.area) < tol * g.length
@@ -310,7 +310,8 @@ def test_context_from_sun_raster_colours_and_bounds():
 def test_context_terrain_nodata_transparent():
     z = np.linspace(1500, 1700, 120 * 80).reshape(120, 80)
     z[:40, :] = -9999.0
-    img = wm.context_from_raster(z, Affine(2.0, 0, X0, 0, -2.0, Y0 + 240), UTM, kind="terrain", nodata=-9999.0)
+    img = wm.context_from_raster(z, Affine(2.0, 0, X0, 0, -2.0, Y0 + 240), UTM, kind="terrain",
+                                 nodata=-9999.0)
     h = img.rgba.shape[0]
     assert img.rgba[h // 8, img.rgba.shape[1] // 2, 3] == 0
     assert img.rgba[7 * h // 8, img.rgba.shape[1] // 2, 3] == 255
