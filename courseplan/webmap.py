@@ -560,7 +560,7 @@ function zoneLayer(colourKey, register){
     style:function(f){return {color:"#3b3f3a", weight:0.7, opacity:0.9, fillColor:f.properties[colourKey],
                               fillOpacity:D.fillOpacity};},
     onEachFeature:function(f, layer){
-      layer.bindPopup(function(){return zonePopup(f.properties);}, {maxWidth:320});
+      layer.bindPopup(function(){return zonePopup(f.properties);}, {maxWidth:340, maxHeight:420});
       if(register){byZone[String(f.properties.id)] = layer;}}
   });
 }
@@ -587,7 +587,7 @@ if (D.obs){
     pointToLayer:function(f, ll){return L.circleMarker(ll, {radius:6, color:"#1b2f4a", weight:2,
       fillColor:f.properties.colour, fillOpacity:1});},
     onEachFeature:function(f, layer){
-      layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:300});
+      layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:300, maxHeight:420});
       byObs[String(f.properties.id)] = layer;}
   });
   obs.addTo(map); overlays["Observations"] = obs;
