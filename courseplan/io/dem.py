@@ -163,8 +163,11 @@ def read_dem(path: str | os.PathLike[str], *, bounds: tuple[float, float, float,
                     f"the area asked for {tuple(round(v, 6) for v in want)} ({bcrs.to_string()}) lies outside "
                     f"the DEM's extent {tuple(round(v, 6) for v in rb)} ({src_crs.to_string()})",
                     where=str(p), fix="give a DEM that covers the course")
-            w = from_bounds(*want_src, transform=ds.transform).round_offsets("floor").round_lengths("ceil")
-            window = w.intersection(Window(0, 0, ds.width, ds.height))
+            w = from_bounds(*want_src, transform=ds.transform)
+            c0, r0 = math.floor(w.col_off + 1e-9), math.floor(w.row_off + 1e-9)   # whole cells, outward
+            c1 = math.ceil(w.col_off + w.width - 1e-9)
+            r1 = math.ceil(w.row_off + w.height - 1e-9)
+            window = Window(c0, r0, c1 - c0, r1 - r0).intersection(Window(0, 0, ds.width, ds.height))
         data = ds.read(band, window=window, masked=True)
         src_transform = ds.window_transform(window) if window is not None else ds.transform
         z = data.astype(np.float32).filled(np.nan)
