@@ -117,14 +117,15 @@ def main() -> None:
     for size in a.sizes:
         r = {}
         for what in ("ours", "hillshade"):
-            p = subprocess.run([sys.executable, __file__, "--child", str(int(size)), what, "--repeat", str(a.repeat)],
-                               capture_output=True, text=True, check=False)
+            cmd = [sys.executable, __file__, "--child", str(int(size)), what, "--repeat", str(a.repeat)]
+            p = subprocess.run(cmd, capture_output=True, text=True, check=False)
             if p.returncode != 0:
                 sys.exit(f"child {what} {int(size)} failed:\n{p.stderr}")
             r[what] = json.loads(p.stdout.strip().splitlines()[-1])
         o, h = r["ours"], r["hillshade"]
         mb = 1e6
-        print(f"{o['cells']:>12,} {o['median_s']:>8.2f} {h['median_s']:>12.2f} {o['median_s'] / h['median_s']:>6.2f}× "
+        ratio = o["median_s"] / h["median_s"]
+        print(f"{o['cells']:>12,} {o['median_s']:>8.2f} {h['median_s']:>12.2f} {ratio:>6.2f}× "
               f"{o['tracemalloc_peak_b'] / mb:>13.0f} {o['maxrss_b'] / mb:>12.0f} "
               f"{h['tracemalloc_peak_b'] / mb:>11.0f} {h['maxrss_b'] / mb:>10.0f} {o['shaded_share']:>6.0%}")
     print("goal: ratio ≤ 1.0× (stretch 0.5×), peak memory < 1 GB; 'shaded' = share of cells with some "

@@ -24,7 +24,8 @@ _PROGRESS_WORK = 20_000_000
 @click.option("--end", required=True, metavar="HH:MM", help="Local end time of the window.")
 @click.option("--step-minutes", type=click.FloatRange(min=0, min_open=True), default=15.0, show_default=True,
               help="Longest time step [min]; the window is split into equal steps.")
-@click.option("--timezone", required=True, metavar="TZ", help="IANA time zone of the clock times, e.g. Europe/Zurich.")
+@click.option("--timezone", required=True, metavar="TZ",
+              help="IANA time zone of the clock times, e.g. Europe/Zurich.")
 @click.option("--out", "out", required=True, type=click.Path(path_type=Path, dir_okay=False),
               help="Output GeoTIFF: band 1 sun fraction (0–1), band 2 irradiation [Wh/m²].")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
@@ -40,7 +41,8 @@ def sun_command(dem_path: Path, date: str, start: str, end: str, step_minutes: f
 
     try:
         if out.exists() and not overwrite:
-            raise OutputError("the output file exists", where=str(out), fix="choose another name or add --overwrite")
+            raise OutputError("the output file exists", where=str(out),
+                              fix="choose another name or add --overwrite")
         _run(dem_path, date, start, end, step_minutes, timezone, out, overwrite)
     except CourseplanError as exc:
         click.echo(f"error: {exc.line()}", err=True)

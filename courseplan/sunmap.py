@@ -75,11 +75,13 @@ def _metric_crs(crs):
     from pyproj import CRS
 
     if crs is None:
-        raise CRSError("the DEM has no CRS", where="DEM", fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
+        raise CRSError("the DEM has no CRS", where="DEM",
+                       fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
     try:
         c = CRS.from_user_input(crs)
     except Exception as exc:  # pyproj raises its own CRSError type
-        raise CRSError(f"cannot read the DEM's CRS ({exc})", where="DEM", fix="give an EPSG code or WKT") from None
+        raise CRSError(f"cannot read the DEM's CRS ({exc})", where="DEM",
+                       fix="give an EPSG code or WKT") from None
     units = {ax.unit_name.lower() for ax in c.axis_info[:2]}
     if not c.is_projected or not units <= {"metre", "meter", "m"}:
         raise CRSError(f"the DEM's CRS {c.name!r} is not projected in metres", where="DEM",
@@ -164,7 +166,8 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
         z = z[::-1]
     nodata = np.isnan(z)
     if nodata.all():
-        raise InputError("the DEM holds no elevation data", where="DEM", fix="check its nodata value and extent")
+        raise InputError("the DEM holds no elevation data", where="DEM",
+                         fix="check its nodata value and extent")
     lon, lat, grid_north = _site(crs_m, transform, z.shape)
     altitude = float(np.nanmedian(z))
     cs = clear_sky_window(lat, lon, altitude, date, start, end, timezone, step_minutes=step_minutes)
@@ -216,6 +219,7 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
         a[nodata] = np.nan
     if flip:
         # back to the caller's row order; aspect is a compass azimuth and needs no change
-        sun_fraction, irr, slope, aspect = (np.ascontiguousarray(a[::-1]) for a in (sun_fraction, irr, slope, aspect))
+        sun_fraction, irr, slope, aspect = (np.ascontiguousarray(a[::-1])
+                                            for a in (sun_fraction, irr, slope, aspect))
     return SunGrids(sun_fraction=sun_fraction, irradiation_wh_m2=irr, slope_deg=slope, aspect_deg=aspect,
                     window=cs, grid_north_deg=grid_north, transform=transform, crs=crs)

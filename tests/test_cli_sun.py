@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 import rasterio
-from click.testing import CliRunner
 from affine import Affine
+from click.testing import CliRunner
 
 from courseplan.cli_sun import sun_command
 from courseplan.errors import CRSError, MissingInputError, OverlapError

@@ -143,8 +143,9 @@ def test_tilted_plane_dem_matches_the_analytic_plane():
     np.testing.assert_allclose(g.slope_deg, 20.0, atol=1e-3)
     np.testing.assert_allclose(g.aspect_deg, 180.0, atol=0.01)   # float32 gradients
     np.testing.assert_allclose(g.irradiation_wh_m2, by_hand(g.window, 20.0, 180.0), rtol=1e-4)
-    open_steps = [z_ < 90 and math.cos(math.radians(z_ - 0)) * math.cos(math.radians(20)) +
-                  math.sin(math.radians(z_)) * math.sin(math.radians(20)) * math.cos(math.radians(a - 180)) > 0
+    b = math.radians(20.0)
+    open_steps = [z_ < 90 and math.cos(math.radians(z_)) * math.cos(b) +
+                  math.sin(math.radians(z_)) * math.sin(b) * math.cos(math.radians(a - 180)) > 0
                   for z_, a in zip(g.window.zenith_deg, g.window.azimuth_deg, strict=True)]
     np.testing.assert_allclose(g.sun_fraction, np.mean(open_steps), atol=1e-6)
 

@@ -22,7 +22,7 @@ from courseplan.physics.terrain import (
 
 
 def plane(n_rows, n_cols, dx, dy, east, north, z0=1000.0):
-    """z = z0 + east·x + north·y on cell centres (x east, y north, row 0 north)."""
+    """Z = z0 + east·x + north·y on cell centres (x east, y north, row 0 north)."""
     rows, cols = np.mgrid[0:n_rows, 0:n_cols].astype(float)
     x = (cols + 0.5) * dx
     y = (n_rows - rows - 0.5) * dy

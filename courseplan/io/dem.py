@@ -1,7 +1,8 @@
 """Read terrain models (DEM GeoTIFFs) in a metric CRS, and write the two-band sun GeoTIFF.
 
 A DEM in a geographic CRS (degrees) is warped (bilinear) to the local UTM zone on GDAL's default
-grid (square cells, about as many as the source has); nodata stays nodata (NaN inside, the file's nodata value on disk is honoured).
+grid (square cells, about as many as the source has); nodata stays nodata (NaN inside; the file's
+nodata value is honoured).
 Optionally only a window (bounds plus a margin) is read: terrain outside the window casts no shadow,
 so give a margin as wide as the longest shadow that matters (a 500 m ridge at 10° sun elevation
 casts about 2.8 km).
@@ -65,7 +66,7 @@ class Dem:
 
 
 def local_utm_crs(lon: float, lat: float):
-    """The WGS 84 UTM zone CRS containing a point (EPSG 326xx north, 327xx south).
+    """Return the WGS 84 UTM zone CRS containing a point (EPSG 326xx north, 327xx south).
 
     Parameters
     ----------
@@ -158,9 +159,11 @@ def read_dem(path: str | os.PathLike[str], *, bounds: tuple[float, float, float,
                 want_src = want if bcrs == src_crs else Transformer.from_crs(
                     bcrs, src_crs, always_xy=True).transform_bounds(*want, densify_pts=21)
             rb = ds.bounds
-            if want_src[0] >= rb.right or want_src[2] <= rb.left or want_src[1] >= rb.top or want_src[3] <= rb.bottom:
+            if (want_src[0] >= rb.right or want_src[2] <= rb.left
+                    or want_src[1] >= rb.top or want_src[3] <= rb.bottom):
                 raise OverlapError(
-                    f"the area asked for {tuple(round(v, 6) for v in want)} ({bcrs.to_string()}) lies outside "
+                    f"the area asked for {tuple(round(v, 6) for v in want)} ({bcrs.to_string()}) "
+                    "lies outside "
                     f"the DEM's extent {tuple(round(v, 6) for v in rb)} ({src_crs.to_string()})",
                     where=str(p), fix="give a DEM that covers the course")
             w = from_bounds(*want_src, transform=ds.transform)
@@ -235,7 +238,8 @@ def write_sun_tiff(path: str | os.PathLike[str], sun_fraction: np.ndarray, irrad
 
     out = Path(path)
     if out.exists() and not overwrite:
-        raise OutputError("the output file exists", where=str(out), fix="choose another name or add --overwrite")
+        raise OutputError("the output file exists", where=str(out),
+                          fix="choose another name or add --overwrite")
     if not out.parent.is_dir():
         raise OutputError("the output folder does not exist", where=str(out.parent), fix="create it first")
     a = np.asarray(sun_fraction, dtype=np.float32)
@@ -257,7 +261,8 @@ def write_sun_tiff(path: str | os.PathLike[str], sun_fraction: np.ndarray, irrad
                 ds.set_band_description(i, name)
                 ds.set_band_unit(i, unit)
             ds.update_tags(1, meaning="share of the window in direct sun (0-1)")
-            ds.update_tags(2, meaning="clear-sky irradiation on the snow surface over the window, direct + diffuse")
+            ds.update_tags(2, meaning="clear-sky irradiation on the snow surface over the window, "
+                                      "direct + diffuse")
             if tags:
                 ds.update_tags(**{str(k): str(v) for k, v in tags.items()})
         os.replace(tmp, out)

@@ -33,7 +33,7 @@ import numpy as np
 import pandas as pd
 
 from courseplan.errors import SettingsError
-from courseplan.physics.terrain import surface_normal, sun_vector
+from courseplan.physics.terrain import sun_vector, surface_normal
 
 __all__ = ["ClearSkyWindow", "clear_sky_window", "irradiation_on_slope_wh_m2", "window_times"]
 
@@ -125,8 +125,8 @@ def _parse_clock(date: str, clock: str, timezone: str, what: str) -> pd.Timestam
     try:
         return naive.tz_localize(timezone, nonexistent="raise", ambiguous="raise")
     except Exception as exc:  # unknown zone names raise several types, depending on the backend
-        raise SettingsError(f"cannot place {date} {clock} in time zone {timezone!r} ({exc})", where="timezone",
-                            fix="use an IANA zone name such as Europe/Zurich") from None
+        raise SettingsError(f"cannot place {date} {clock} in time zone {timezone!r} ({exc})",
+                            where="timezone", fix="use an IANA zone name such as Europe/Zurich") from None
 
 
 def window_times(date: str, start: str, end: str, timezone: str,

@@ -29,7 +29,7 @@ __all__ = ["ShadowCaster", "cast_shadow", "cos_incidence", "horn_gradient", "nor
 
 
 def sun_vector(zenith_deg, azimuth_deg):
-    """Unit vector towards the sun in (east, north, up) components.
+    """Return the unit vector towards the sun in (east, north, up) components.
 
     Parameters
     ----------
