@@ -144,8 +144,8 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
     azimuths are turned from true north onto grid north (UTM meridian convergence).  A time step
     counts as sunlit for a cell when the sun is above the horizon, ``cos θ > 0`` on the cell's slope
     and no terrain up-sun hides the sun; the beam ``DNI · cos θ`` is added for those steps only.
-    Working arrays are float32 and reused from step to step: peak memory is about 14 float32 grids
-    (≈ 560 MB for 10 million cells).
+    Working arrays are float32 and reused from step to step: peak memory is about 12 float32 grids
+    (460 MB measured for 10 million cells, ``benchmarks/bench_sun.py``).
     """
     crs_m = _metric_crs(crs)
     z = np.array(dem, dtype=np.float32, copy=True)
