@@ -21,7 +21,6 @@ from .errors import SettingsError
 from .grid import Grid
 from .settings import PlanSettings
 
-
 PRACTICE_HIGH_G_M2 = 150.0
 """Upper end of reported alpine doses per pass, 50–150 g/m² [from memory, domain-data §7]: a
 plausibility flag only, never a limit on the computed dose."""

@@ -275,8 +275,8 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         and ``geometry``.
     """
     import geopandas as gpd
-    from rasterio.features import shapes, sieve
     from rasterio.features import rasterize as rio_rasterize
+    from rasterio.features import shapes, sieve
 
     grid = inp.sun
     notes: list[str] = []

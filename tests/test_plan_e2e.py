@@ -150,3 +150,23 @@ def test_check_lists_every_problem_at_once(tmp_path):
     assert "sun file not found" in res.output
     assert "obs.csv:2" in res.output and "lwc_pct 140" in res.output
     assert "2 problems found" in res.output
+
+
+def test_named_markers_split_the_sections(tmp_path):
+    # Three named markers placed on the centreline at 1/4, 1/2 and 3/4 of its length: every zone's
+    # section is "start" or one of those names, and they appear in course order.
+    import geopandas as gpd
+
+    line = gpd.read_file(SAMPLE / "centreline.geojson").to_crs("EPSG:32632").geometry.iloc[0]
+    names = ["Gate 12", "Waldkante", "Schuss"]
+    pts = [line.interpolate(f, normalized=True) for f in (0.25, 0.5, 0.75)]
+    gpd.GeoDataFrame({"name": names}, geometry=pts, crs="EPSG:32632").to_file(tmp_path / "m.geojson")
+    out = tmp_path / "o"
+    res = run(["plan", str(SAMPLE / "plan.toml"), "--set", f'inputs.markers="{tmp_path / "m.geojson"}"',
+               "--out", str(out)])
+    assert res.exit_code == 0, res.output
+    z = gpd.read_file(out / "zones.gpkg", layer="zones").sort_values("course_order")
+    order = {"start": 0, **{n: i + 1 for i, n in enumerate(names)}}
+    ranks = [order[s] for s in z["section"]]
+    assert set(ranks) == {0, 1, 2, 3}
+    assert ranks == sorted(ranks)

@@ -13,9 +13,10 @@ from ..settings import PlanSettings
 
 
 def utm_crs(lon: float, lat: float) -> CRS:
-    """The UTM zone CRS (WGS84) containing a point."""
-    zone = int((lon + 180.0) // 6.0) % 60 + 1
-    return CRS.from_epsg((32600 if lat >= 0 else 32700) + zone)
+    """The UTM zone CRS (WGS84) containing a point (see :func:`courseplan.io.dem.local_utm_crs`)."""
+    from .dem import local_utm_crs
+
+    return CRS.from_user_input(local_utm_crs(lon, lat))
 
 
 def is_metric(crs: CRS | None) -> bool:
@@ -28,7 +29,8 @@ def is_metric(crs: CRS | None) -> bool:
 
 def choose_working_crs(settings: PlanSettings, course_crs: CRS, course_geom, raster_crs: CRS | None) -> CRS:
     """The one metric CRS used inside: the setting, else the sun raster's or DEM's when metric
-    (so the raster is not resampled), else the course's when metric, else the local UTM zone."""
+    (so the raster is not resampled), else the course's when metric, else the local UTM zone.
+    """
     if settings.inputs.crs:
         try:
             crs = CRS.from_user_input(settings.inputs.crs)
@@ -59,6 +61,23 @@ def _reproject_geom(geom, src: CRS, dst: CRS):
     return shapely.make_valid(g) if not g.is_valid else g
 
 
+def _read_vector_with_crs(path: Path, what: str):
+    """Read a vector file that must carry a CRS (centreline, markers)."""
+    import geopandas as gpd
+
+    from .course import check_readable
+
+    p = check_readable(path, what)
+    try:
+        g = gpd.read_file(p)
+    except Exception as exc:  # pyogrio raises several types for unreadable data
+        raise InputError(f"cannot read the {what} as a vector file ({type(exc).__name__})", where=str(p),
+                         fix="give a GeoJSON, GeoPackage or Shapefile") from None
+    if g.crs is None:
+        raise CRSError(f"the {what} file has no CRS", where=str(p), fix="save it with a CRS")
+    return p, g
+
+
 def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInputs:
     """Read the course, rasters, observations, forecast, centreline and agents of a plan.
 
@@ -70,9 +89,7 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
         When True, keep going after a problem and raise :class:`ProblemList` with all of them
         (``courseplan check``); otherwise raise the first.
     """
-    import geopandas as gpd
-
-    from .course import check_readable, read_course
+    from .course import read_course
     from .rasters import open_raster_info, read_window
 
     problems: list[CourseplanError] = []
@@ -148,10 +165,7 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
     centre = None
     if ins.centreline:
         def read_line():
-            p = check_readable(ins.centreline, "centreline")
-            g = gpd.read_file(p)
-            if g.crs is None:
-                raise CRSError("the centreline file has no CRS", where=str(p), fix="save it with a CRS")
+            p, g = _read_vector_with_crs(ins.centreline, "centreline")
             lines = g[g.geometry.geom_type.isin(["LineString", "MultiLineString"])]
             if len(lines) == 0:
                 raise InputError("the centreline file holds no line", where=str(p),
@@ -168,10 +182,7 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
     markers: tuple = ()
     if ins.markers:
         def read_markers():
-            p = check_readable(ins.markers, "markers")
-            g = gpd.read_file(p)
-            if g.crs is None:
-                raise CRSError("the markers file has no CRS", where=str(p), fix="save it with a CRS")
+            p, g = _read_vector_with_crs(ins.markers, "markers")
             g = g[g.geometry.geom_type == "Point"].to_crs(crs)
             name_col = next((c for c in g.columns if c.lower() in ("name", "label")), None)
             if name_col is None or len(g) == 0:

@@ -87,7 +87,8 @@ def _gpkg_ready(gdf):
 
 def write_gpkg(path: Path, result) -> None:
     """Write ``zones``, ``course``, ``observations``, ``crews`` and the ``plan_settings``, ``plan_totals``
-    and ``units`` tables into one GeoPackage."""
+    and ``units`` tables into one GeoPackage.
+    """
     import pyogrio
 
     _gpkg_ready(result.zones).to_file(path, layer="zones", driver="GPKG", engine="pyogrio")
