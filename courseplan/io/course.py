@@ -132,14 +132,18 @@ def repair_polygon(geom: BaseGeometry, where: str, max_change: float = 0.01) -> 
     Returns the (possibly repaired) geometry and warnings that say where it was invalid.
     """
     notes: list[str] = []
-    if geom.is_empty or geom.area <= 0:
-        raise GeometryError("the course polygon is empty or has zero area", where=where,
-                            fix="draw the outline with at least three distinct corners")
+    zero = GeometryError("the course polygon is empty or has zero area", where=where,
+                         fix="draw the outline with at least three distinct corners")
+    # a self-intersecting "bow tie" has zero signed area but is not empty: judge it after repair
+    if geom.is_empty or (geom.area <= 0 and geom.is_valid):
+        raise zero
     if not geom.is_valid:
         reason = shapely.is_valid_reason(geom)
         fixed = shapely.make_valid(geom)
         if fixed.geom_type == "GeometryCollection":
             fixed = shapely.unary_union([g for g in fixed.geoms if g.geom_type in ("Polygon", "MultiPolygon")])
+        if fixed.is_empty or fixed.area <= 0:
+            raise zero
         change = abs(fixed.area - abs(geom.area)) / max(fixed.area, 1e-12) if not fixed.is_empty else 1.0
         if fixed.is_empty or fixed.geom_type not in ("Polygon", "MultiPolygon") or change > max_change:
             raise GeometryError(f"the course polygon is invalid ({reason}) and cannot be repaired safely",

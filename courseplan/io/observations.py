@@ -79,7 +79,13 @@ def read_observations(path: Path, work_crs: CRS, *, timezone: str = "UTC", xy_cr
             raise
         raise InputError(f"cannot read the observations ({type(exc).__name__})", where=str(p),
                          fix="give a CSV or a vector point file") from None
-    df.columns = [ALIASES.get(str(c).strip().lower(), str(c).strip().lower()) for c in df.columns]
+    raw_cols = [str(c).strip() for c in df.columns]
+    df.columns = [ALIASES.get(c.lower(), c.lower()) for c in raw_cols]
+    dup = sorted({c for c in df.columns if list(df.columns).count(c) > 1})
+    if dup:
+        both = [r for r, c in zip(raw_cols, df.columns, strict=True) if c in dup]
+        raise InputError(f"the observations give {', '.join(dup)} more than once (columns {', '.join(both)})",
+                         where=str(p), fix="keep one column of each")
     problems: list[str] = []
     if geoms is None:
         if {"lon", "lat"} <= set(df.columns):
@@ -88,7 +94,12 @@ def read_observations(path: Path, work_crs: CRS, *, timezone: str = "UTC", xy_cr
             if not xy_crs:
                 raise CRSError("the observations have x/y columns but no CRS is given", where=str(p),
                                fix="set [inputs] observations_crs (e.g. \"EPSG:32632\") or give lon/lat columns")
-            xcol, ycol, src_crs = "x", "y", CRS.from_user_input(xy_crs)
+            try:
+                src_crs = CRS.from_user_input(xy_crs)
+            except Exception:  # pyproj.exceptions.CRSError and friends
+                raise CRSError(f"unknown CRS {xy_crs!r} for the observations' x/y columns",
+                               where="[inputs] observations_crs", fix='write e.g. "EPSG:32632"') from None
+            xcol, ycol = "x", "y"
         else:
             raise InputError("the observations have no position columns", where=str(p),
                              fix="add lon and lat (WGS84) or x and y columns")

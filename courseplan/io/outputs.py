@@ -173,7 +173,10 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         tmp.rename(out_dir)
         if old is not None:
             shutil.rmtree(old, ignore_errors=True)
-    except BaseException:
+    except BaseException as exc:
         shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError) and not isinstance(exc, OutputError):  # a full disk, a lost mount
+            raise OutputError(f"cannot write the outputs ({exc.strerror or exc}); nothing was written",
+                              where=str(out_dir), fix="check the free disk space and permissions") from exc
         raise
     return [out_dir / f for f in FILES]

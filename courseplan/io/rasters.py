@@ -82,11 +82,15 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
             f"the {what} raster does not overlap the course: raster extent {_fmt_bounds(rb)} in "
             f"{rcrs.to_string()}, course extent {_fmt_bounds(bounds)} in {work_crs.to_string()}",
             where=str(path), fix="give a raster that covers the course, or check both files' CRS")
+    # A raster that covers only part of the course is read beyond its edge (NaN there), so that the
+    # uncovered share of the course is counted as missing data instead of silently cut off.
+    partial = same and not (rb[0] <= minx and rb[1] <= miny and maxx <= rb[2] and maxy <= rb[3])
     with rasterio.open(path) as ds:
         win = from_bounds(*want_r, transform=ds.transform)
         win = win.round_offsets(op="floor").round_lengths(op="ceil")
-        win = win.intersection(rasterio.windows.Window(0, 0, ds.width, ds.height))
-        data = ds.read(band, window=win, masked=True).astype(np.float32)
+        if not partial:
+            win = win.intersection(rasterio.windows.Window(0, 0, ds.width, ds.height))
+        data = ds.read(band, window=win, masked=True, boundless=partial).astype(np.float32)
         wtransform = ds.window_transform(win)
         arr = data.filled(np.nan)
         if ds.nodata is not None and not np.isnan(ds.nodata):
