@@ -1,5 +1,8 @@
-"""All-or-nothing output: temporary folder moved into place, existing folders refused, interruptions
-leave nothing behind, and inputs are never modified."""
+"""All-or-nothing output.
+
+A temporary folder is moved into place, existing folders are refused, interruptions leave nothing
+behind, and inputs are never modified.
+"""
 
 from __future__ import annotations
 
@@ -20,7 +23,7 @@ X0, Y0 = 500_000.0, 5_150_000.0
 
 @pytest.fixture
 def tiny(tmp_path):
-    """A 200 m × 300 m course in EPSG:32632 and a sun raster around it; returns the plan arguments."""
+    """Make a 200 m × 300 m course in EPSG:32632 and a sun raster around it; return the plan arguments."""
     import rasterio
     from rasterio.transform import from_origin
 
@@ -28,7 +31,8 @@ def tiny(tmp_path):
     course = tmp_path / "in" / "course.geojson"
     course.parent.mkdir()
     course.write_text(json.dumps({
-        "type": "FeatureCollection", "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32632"}},
+        "type": "FeatureCollection",
+        "crs": {"type": "name", "properties": {"name": "urn:ogc:def:crs:EPSG::32632"}},
         "features": [{"type": "Feature", "properties": {"name": "c"},
                       "geometry": {"type": "Polygon", "coordinates": [ring]}}]}))
     sun = tmp_path / "in" / "sun.tif"

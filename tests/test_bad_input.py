@@ -55,7 +55,7 @@ def sun_tif(path: Path, *, values: np.ndarray | None = None, crs: str | None = "
 
 @pytest.fixture
 def good(tmp_path):
-    """A valid course and sun raster; ``good.args()`` gives the command line."""
+    """Make a valid course and sun raster; ``good.args()`` gives the command line."""
 
     class Good:
         course = geojson(tmp_path / "course.geojson", [feature(polygon(SQUARE))])
@@ -158,20 +158,25 @@ def test_no_polygon(good, tmp_path):
     refused(run(good.args(course=p)), good.out, "holds no polygon", "Point", "draw the course outline")
 
 
+def two_polygons(tmp_path: Path) -> Path:
+    features = [feature(polygon(SQUARE), "upper"), feature(polygon(SQUARE), "lower")]
+    return geojson(tmp_path / "two.geojson", features)
+
+
 def test_several_polygons_say_how_to_pick(good, tmp_path):
-    p = geojson(tmp_path / "two.geojson", [feature(polygon(SQUARE), "upper"), feature(polygon(SQUARE), "lower")])
+    p = two_polygons(tmp_path)
     text = refused(run(good.args(course=p)), good.out, "2 polygons", "upper", "lower", "--course-feature")
     assert "course_feature" in text
 
 
 def test_several_polygons_unknown_pick(good, tmp_path):
-    p = geojson(tmp_path / "two.geojson", [feature(polygon(SQUARE), "upper"), feature(polygon(SQUARE), "lower")])
+    p = two_polygons(tmp_path)
     refused(run(good.args("--course-feature", "middle", course=p)), good.out,
             "no course polygon matches 'middle'", "use one of", "upper")
 
 
 def test_several_polygons_pick_by_name_works(good, tmp_path):
-    p = geojson(tmp_path / "two.geojson", [feature(polygon(SQUARE), "upper"), feature(polygon(SQUARE), "lower")])
+    p = two_polygons(tmp_path)
     res = run(good.args("--course-feature", "lower", "--quiet", course=p))
     assert res.exit_code == 0, res.output
 
@@ -238,7 +243,8 @@ def test_raster_without_crs(good, tmp_path):
 
 def test_raster_not_overlapping(good, tmp_path):
     p = sun_tif(tmp_path / "far.tif", x0=X0 + 50_000)
-    refused(run(good.args(sun=p)), good.out, "does not overlap", "raster extent", "course extent", "EPSG:32632")
+    refused(run(good.args(sun=p)), good.out, "does not overlap", "raster extent", "course extent",
+            "EPSG:32632")
 
 
 def test_raster_partly_covering_is_refused_above_threshold(good, tmp_path):
@@ -311,7 +317,8 @@ def test_observations_good_rows_plan(good, tmp_path):
     ("B,yesterday morning,{lon},{lat},wet,4.0,0.0,560", ["obs.csv:3", "time 'yesterday morning'",
                                                          "ISO 8601"]),
     ("B,2027-03-18T07:30+01:00,{lon},{lat},damp,,0.0,560", ["obs.csv:3", "wetness 'damp'", "very-wet"]),
-    ("B,2027-03-18T07:30+01:00,{lon},{lat},wet,four,0.0,560", ["obs.csv:3", "lwc_pct 'four'", "not a number"]),
+    ("B,2027-03-18T07:30+01:00,{lon},{lat},wet,four,0.0,560", ["obs.csv:3", "lwc_pct 'four'",
+                                                               "not a number"]),
     ("B,2027-03-18T07:30+01:00,,,wet,4.0,0.0,560", ["obs.csv:3", "position is missing"]),
     ("B,2027-03-18T07:30+01:00,{lon},{lat},wet,4.0,-80,560", ["obs.csv:3", "snow_temp_c -80"]),
 ])
@@ -356,7 +363,8 @@ def test_observations_header_only(good, tmp_path):
 
 def plan_file(tmp_path: Path, good, text: str) -> Path:
     p = tmp_path / "plan.toml"
-    p.write_text(f'[plan]\ndate = "{DATE}"\n[inputs]\ncourse = "{good.course.name}"\nsun = "{good.sun.name}"\n'
+    p.write_text(f'[plan]\ndate = "{DATE}"\n[inputs]\n'
+                 f'course = "{good.course.name}"\nsun = "{good.sun.name}"\n'
                  + text)
     return p
 
@@ -416,7 +424,8 @@ def test_negative_crews_flag(good):
 
 
 def test_set_override_bad_shape(good):
-    refused(run(good.args("--set", "depth_m=0.05")), good.out, "is not table.key=value", "--set dosing.depth_m")
+    refused(run(good.args("--set", "depth_m=0.05")), good.out, "is not table.key=value",
+            "--set dosing.depth_m")
 
 
 def test_set_override_unknown_key(good):

@@ -1,6 +1,8 @@
-"""Fuzz the observations reader: whatever the file holds, it returns a GeoDataFrame or raises an
-:class:`~courseplan.errors.InputError` (never another exception), and every bad value is reported with
-its line number."""
+"""Fuzz the observations reader.
+
+Whatever the file holds, it returns a GeoDataFrame or raises an :class:`~courseplan.errors.InputError`
+(never another exception), and every bad value is reported with its line number.
+"""
 
 from __future__ import annotations
 
