@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import shapely
@@ -80,15 +81,34 @@ class ZoningInputs:
 
 @dataclass(frozen=True)
 class ZoningResult:
-    """Zones (GeoDataFrame) plus what the later stages and outputs need."""
+    """The zones plus what the later stages and outputs need.
 
-    zones: object  # geopandas.GeoDataFrame
+    ``table`` (column name → values, in course order) and ``geometries`` are plain Python and
+    shapely objects; ``zones`` joins them into a GeoDataFrame on first use, so that the zoning
+    stage itself needs neither pandas nor geopandas.
+    """
+
+    table: dict
+    geometries: tuple
+    crs: object  # pyproj.CRS
     start_xy: tuple[float, float]
     finish_xy: tuple[float, float]
     exposure_breaks: tuple[float, ...]
     uncovered_share: float
     notes: tuple[str, ...] = field(default=())
     exposure_grid: Grid | None = None
+
+    @property
+    def n_zones(self) -> int:
+        """Number of zones."""
+        return len(self.geometries)
+
+    @cached_property
+    def zones(self):  # -> geopandas.GeoDataFrame
+        """The zones as a GeoDataFrame (columns of ``table`` plus ``geometry``)."""
+        import geopandas as gpd
+
+        return gpd.GeoDataFrame(dict(self.table), geometry=list(self.geometries), crs=self.crs)
 
 
 def _rasterize(geom: BaseGeometry, grid: Grid, all_touched: bool) -> np.ndarray:
@@ -107,48 +127,121 @@ def _fill_nearest(values: np.ndarray, valid: np.ndarray) -> np.ndarray:
     return values[tuple(idx)]
 
 
+LATTICE_STEP_M = 8.0
+"""Spacing of the lattice on which a cell's position along the course line is computed exactly [m];
+cells between lattice nodes are interpolated bilinearly (the position is a smooth function of the
+point except on the inner side of sharp bends, where it jumps by less than the course width)."""
+
+
+def _cell_xy(grid: Grid, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Working-CRS x and y of the centres of cells (rows, cols) of a north-up *grid*."""
+    t = grid.transform
+    return t.c + t.a * (cols + 0.5), t.f + t.e * (rows + 0.5)
+
+
+def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid: Grid,
+                    step_m: float = LATTICE_STEP_M) -> np.ndarray:
+    """Position along *line* [m] of the centres of cells (rows, cols).
+
+    ``shapely.line_locate_point`` (GEOS projection) is evaluated on a lattice of about *step_m*
+    around the cells only, and interpolated bilinearly in between: on a 1 m grid that is about 40×
+    fewer projections.  When the cells are coarser than *step_m* every cell is projected exactly.
+    """
+    cw, ch = grid.cell_size
+    s = max(1, int(step_m // max(cw, ch)))
+    if s == 1 or rows.size < 256:
+        x, y = _cell_xy(grid, rows, cols)
+        return shapely.line_locate_point(line, shapely.points(x, y))
+    br, bc = rows // s, cols // s
+    r0, c0 = int(br.min()), int(bc.min())
+    br, bc = br - r0, bc - c0
+    width = int(bc.max()) + 2
+    need = np.zeros((int(br.max()) + 2) * width, dtype=bool)
+    flat = br * width + bc
+    for off in (0, 1, width, width + 1):
+        need[flat + off] = True
+    nodes = np.flatnonzero(need)
+    ni, nj = np.divmod(nodes, width)
+    x, y = _cell_xy(grid, (ni + r0) * s, (nj + c0) * s)
+    # Lattice nodes lie up to one step beyond the outermost cells; GEOS clamps positions beyond the
+    # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
+    margin = 2.0 * s * max(cw, ch)
+    lat = np.full(need.size, np.nan)
+    lat[nodes] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
+    tr = (rows - (br + r0) * s) / s
+    tc = (cols - (bc + c0) * s) / s
+    d = ((1.0 - tr) * ((1.0 - tc) * lat[flat] + tc * lat[flat + 1])
+         + tr * ((1.0 - tc) * lat[flat + width] + tc * lat[flat + width + 1]))
+    return np.clip(d, 0.0, line.length)
+
+
+def _prolong(line: BaseGeometry, margin: float) -> BaseGeometry:
+    """*line* with both end segments prolonged straight by *margin* [m]."""
+    if line.geom_type != "LineString":
+        return line
+    c = shapely.get_coordinates(line)
+    if len(c) < 2:
+        return line
+    u0 = c[0] - c[1]
+    u1 = c[-1] - c[-2]
+    n0, n1 = float(np.hypot(*u0)), float(np.hypot(*u1))
+    if n0 == 0 or n1 == 0:
+        return line
+    return shapely.LineString(np.vstack([c[0] + u0 / n0 * margin, c, c[-1] + u1 / n1 * margin]))
+
+
 def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
                           centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
-                          max_nodes: int = 250_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
-                                                             list[str]]:
+                          max_nodes: int = 40_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
+                                                            list[str]]:
     """Distance from the start [m] of every masked cell, following the course.
 
+    A grid wrapper of :func:`distance_of_cells`.  Returns the distance grid (NaN outside the
+    mask), the start and finish used, and notes.
+    """
+    rows, cols = np.nonzero(mask)
+    d, start, finish, notes = distance_of_cells(rows, cols, grid, start_xy, centreline, elevation, max_nodes)
+    dist = np.full(mask.shape, np.nan, dtype=np.float64)
+    dist[rows, cols] = d
+    return dist, start, finish, notes
+
+
+def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
+                      centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
+                      max_nodes: int = 40_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
+                                                        list[str]]:
+    """Distance from the start [m] of the course cells (rows, cols) of *grid*, following the course.
+
     With a centreline: the position of each cell centre projected on the line.  Otherwise the
-    shortest 8-connected path inside the mask (Dijkstra) on a grid coarsened to at most
-    *max_nodes* cells.  Without a start point the two ends of the course are found by a double
-    sweep (farthest cell from any cell, then farthest from that); the start is the higher end
-    when elevations are given, else the northern end.
+    shortest 8-connected path inside the course (Dijkstra, ``scipy.sparse.csgraph``) on the cell
+    grid coarsened to at most *max_nodes* cells; its equal-distance bands give a centreline through
+    their centroids, on which the cells are then projected (the level sets of a geodesic distance
+    from one point are round; sections must cut across the course).  Without a start point the two
+    ends of the course are found by a double sweep (farthest cell from any cell, then farthest from
+    that); the start is the higher end when elevations are given, else the northern end.
 
     Returns
     -------
     distance, start_xy, finish_xy, notes
-        Distance grid (NaN outside the mask) and the start and finish used.
+        Distance of each cell [m] and the start and finish used.
     """
     notes: list[str] = []
-    xs, ys = grid.cell_centres()
-    rows, cols = np.nonzero(mask)
-    px, py = xs[cols], ys[rows]
-    dist = np.full(mask.shape, np.nan, dtype=np.float64)
     if centreline is not None:
-        pts = shapely.points(px, py)
-        d = shapely.line_locate_point(centreline, pts)
-        dist[rows, cols] = d
+        d = _locate_on_line(centreline, rows, cols, grid)
         s = centreline.interpolate(0.0)
         f = centreline.interpolate(centreline.length)
-        return dist, (s.x, s.y), (f.x, f.y), notes
+        return d, (s.x, s.y), (f.x, f.y), notes
 
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import dijkstra
 
-    n_cells = int(mask.sum())
-    k = max(1, int(math.ceil(math.sqrt(n_cells / max_nodes))))
-    R, C = mask.shape
-    Rc, Cc = -(-R // k), -(-C // k)
-    pad = np.zeros((Rc * k, Cc * k), dtype=bool)
-    pad[:R, :C] = mask
-    cm = pad.reshape(Rc, k, Cc, k).any(axis=(1, 3))
-    node = -np.ones(cm.shape, dtype=np.int64)
-    node[cm] = np.arange(int(cm.sum()))
+    k = max(1, int(math.ceil(math.sqrt(rows.size / max_nodes))))
+    cm = np.zeros((int(rows.max()) // k + 1, int(cols.max()) // k + 1), dtype=bool)
+    cm[rows // k, cols // k] = True
+    Rc, Cc = cm.shape
+    node = np.full(cm.shape, -1, dtype=np.int32)
+    nn = int(cm.sum())
+    node[cm] = np.arange(nn, dtype=np.int32)
     cw, ch = grid.cell_size[0] * k, grid.cell_size[1] * k
     src, dst, wt = [], [], []
     for dr, dc in ((0, 1), (1, 0), (1, 1), (1, -1)):
@@ -158,23 +251,19 @@ def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, f
         src.append(a[ok])
         dst.append(b[ok])
         wt.append(np.full(int(ok.sum()), math.hypot(cw * dc, ch * dr)))
-    src_a, dst_a, wt_a = np.concatenate(src), np.concatenate(dst), np.concatenate(wt)
-    nn = int(cm.sum())
-    g = coo_matrix((wt_a, (src_a, dst_a)), shape=(nn, nn)).tocsr()
+    g = coo_matrix((np.concatenate(wt), (np.concatenate(src), np.concatenate(dst))), shape=(nn, nn)).tocsr()
     crow, ccol = np.nonzero(cm)
     t = grid.transform
     cx = t.c + t.a * (ccol * k + k / 2.0)
     cy = t.f + t.e * (crow * k + k / 2.0)
 
-    def far(start_node: int) -> tuple[np.ndarray, int]:
+    def far(start_node: int) -> int:
         d = dijkstra(g, directed=False, indices=start_node)
-        d_f = np.where(np.isfinite(d), d, -1)
-        return d, int(np.argmax(d_f))
+        return int(np.argmax(np.where(np.isfinite(d), d, -1)))
 
     if start_xy is None:
-        _, a_node = far(0)
-        d_a, b_node = far(a_node)
-        ends = [a_node, b_node]
+        a_node = far(0)
+        ends = [a_node, far(a_node)]
         if elevation is not None:
             ez = []
             for e in ends:
@@ -194,9 +283,7 @@ def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, f
     if unreachable.any():
         d_nodes[unreachable] = np.nanmax(np.where(unreachable, np.nan, d_nodes))
     finish_node = int(np.argmax(d_nodes))
-    # The geodesic distance from one point has round level sets; sections must cut across the
-    # course.  Derive a centreline from the centroids of equal-distance bands (they follow the
-    # middle of the course through bends), then measure every cell along that line.
+    # Centroids of equal-distance bands follow the middle of the course through bends.
     band = max(2.0 * max(cw, ch), min(20.0, float(np.max(d_nodes)) / 20.0))
     bidx = np.floor(d_nodes / band).astype(np.int64)
     nb = int(bidx.max()) + 1
@@ -217,12 +304,11 @@ def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, f
         coords = [start] + coords
     if len(coords) < 2:
         coords = [start, finish]
+    px, py = _cell_xy(grid, rows, cols)
     coords = _extend_ends(coords, px, py, extend_start=start_xy is None)
     line = shapely.LineString(coords).simplify(0.5 * max(cw, ch))
     start, finish = coords[0], coords[-1]
-    pts = shapely.points(px, py)
-    dist[rows, cols] = shapely.line_locate_point(line, pts)
-    return dist, start, finish, notes
+    return _locate_on_line(line, rows, cols, grid), start, finish, notes
 
 
 def _extend_ends(coords: list[tuple[float, float]], px: np.ndarray, py: np.ndarray,
@@ -253,6 +339,131 @@ def _extend_ends(coords: list[tuple[float, float]], px: np.ndarray, py: np.ndarr
     return out
 
 
+def _label_regions(code: np.ndarray) -> tuple[np.ndarray, int]:
+    """Number the 4-connected regions of equal non-zero *code* 1 … n (``scipy.ndimage.label`` per code,
+    each inside that code's bounding box from ``find_objects``, so the work follows the course)."""
+    from scipy import ndimage
+
+    region = np.zeros(code.shape, dtype=np.int32)
+    n_reg = 0
+    for c, box in enumerate(ndimage.find_objects(code), start=1):
+        if box is None:
+            continue
+        sub = code[box] == c
+        lab, n = ndimage.label(sub)
+        if n:
+            view = region[box]
+            view[sub] = lab[sub] + n_reg
+            n_reg += n
+    return region, n_reg
+
+
+def _polygon_from_geojson(gj: dict) -> BaseGeometry:
+    """A shapely polygon from a GeoJSON-like polygon mapping (as ``rasterio.features.shapes`` yields),
+    built from coordinate arrays (much faster than ``shapely.geometry.shape`` for long rings)."""
+    rings = [shapely.linearrings(np.asarray(r, dtype=np.float64)) for r in gj["coordinates"]]
+    return shapely.polygons(rings[0], holes=rings[1:] or None)
+
+
+def _clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
+    """Intersection of each polygon with *course*, exact.
+
+    Polygons that lie inside the course are kept as they are (``contains_properly`` on the
+    prepared course); for the others the overlay runs against the course clipped to the polygon's
+    bounding box (``clip_by_rect``), not against the whole course outline.
+    """
+    out = polys.copy()
+    shapely.prepare(course)
+    cut = ~shapely.contains_properly(course, polys)
+    if cut.any():
+        b = shapely.bounds(polys[cut])
+        local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
+        bad = ~shapely.is_valid(local)
+        local[bad] = course
+        out[cut] = shapely.intersection(polys[cut], local)
+    return out
+
+
+def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch: np.ndarray, grid: Grid,
+                         min_area: float, n_exp: int, n_slope: int) -> tuple[np.ndarray, int]:
+    """Merge regions below *min_area* into the most similar neighbour, on the raster.
+
+    The same rule as :func:`_merge_small` (exposure class first, then slope class, then section,
+    then the longest shared edge), with areas counted in cells and shared edges in cell sides.
+    Doing it before polygonising leaves the vector merge only the few pieces that clipping to the
+    exact outline makes small.  Returns the relabelled regions, numbered 1 … n again.
+    """
+    if n_reg < 2:
+        return region, n_reg
+    cw, ch = grid.cell_size
+    area = np.bincount(region[touch], minlength=n_reg + 1).astype(np.float64) * (cw * ch)
+    if not (area[1:] < min_area).any():
+        return region, n_reg
+    pair_parts, len_parts = [], []
+    for a, b, side in ((region[:, :-1], region[:, 1:], ch), (region[:-1, :], region[1:, :], cw)):
+        m = (a != b) & (a > 0) & (b > 0)
+        lo, hi = np.minimum(a[m], b[m]).astype(np.int64), np.maximum(a[m], b[m]).astype(np.int64)
+        pair_parts.append(lo * (n_reg + 1) + hi)
+        len_parts.append(np.full(lo.size, side))
+    keys, inv = np.unique(np.concatenate(pair_parts), return_inverse=True)
+    shared = np.bincount(inv, weights=np.concatenate(len_parts))
+    nb: list[dict[int, float]] = [{} for _ in range(n_reg + 1)]
+    for k, length in zip(keys.tolist(), shared.tolist(), strict=True):
+        i, j = divmod(k, n_reg + 1)
+        nb[i][j] = nb[i].get(j, 0.0) + length
+        nb[j][i] = nb[j].get(i, 0.0) + length
+    reg_code = np.zeros(n_reg + 1, dtype=np.int64)
+    reg_code[region.ravel()] = code.ravel()
+    key = [((c - 1) // n_slope % n_exp, (c - 1) % n_slope, (c - 1) // (n_slope * n_exp)) for c in reg_code.tolist()]
+    alive = np.ones(n_reg + 1, dtype=bool)
+    alive[0] = False
+    target = np.arange(n_reg + 1)
+    import heapq
+
+    heap = [(float(area[i]), i) for i in range(1, n_reg + 1) if area[i] < min_area]
+    heapq.heapify(heap)
+    while heap:
+        a_i, i = heapq.heappop(heap)
+        if not alive[i] or a_i != area[i]:
+            continue
+        best, best_score = None, None
+        for j, length in nb[i].items():
+            if not alive[j]:
+                continue
+            ki, kj = key[i], key[j]
+            score = (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -length)
+            if best_score is None or score < best_score:
+                best, best_score = j, score
+        if best is None:
+            continue  # an island: stays a zone of its own
+        alive[i] = False
+        target[i] = best
+        area[best] += area[i]
+        for j, length in nb[i].items():
+            if j == best:
+                continue
+            nb[j].pop(i, None)
+            if alive[j]:
+                nb[j][best] = nb[j].get(best, 0.0) + length
+                nb[best][j] = nb[best].get(j, 0.0) + length
+        nb[best].pop(i, None)
+        nb[i] = {}
+        if area[best] < min_area:
+            heapq.heappush(heap, (float(area[best]), best))
+    # Follow the merge chains to the surviving region, then renumber 1 … n.
+    for i in range(1, n_reg + 1):
+        j = i
+        while target[j] != j:
+            j = target[j]
+        target[i] = j
+    lut = np.zeros(n_reg + 1, dtype=np.int32)
+    survivors = np.flatnonzero(alive)
+    lut[survivors] = np.arange(1, survivors.size + 1, dtype=np.int32)
+    lut = lut[target]
+    lut[0] = 0
+    return lut[region], int(survivors.size)
+
+
 def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 max_uncovered_pct: float = 5.0) -> ZoningResult:
     """Split the course into zones (see the module docstring for the steps).
@@ -271,27 +482,37 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     Returns
     -------
     ZoningResult
-        ``zones`` has the columns declared in :data:`courseplan.columns.ZONING`, plus ``aspect_deg``
-        and ``geometry``.
+        ``table`` holds the columns declared in :data:`courseplan.columns.ZONING`, plus
+        ``aspect_deg``; ``geometries`` the zone polygons; ``zones`` both as a GeoDataFrame.
     """
-    import geopandas as gpd
-    from rasterio.features import rasterize as rio_rasterize
+    from affine import Affine
     from rasterio.features import shapes, sieve
 
     grid = inp.sun
     notes: list[str] = []
-    touch = _rasterize(inp.course, grid, all_touched=True)
-    inside = _rasterize(inp.course, grid, all_touched=False)
-    if not inside.any():
-        inside = touch
-    if not touch.any():
+    touch_w = _rasterize(inp.course, grid, all_touched=True)
+    if not touch_w.any():
         raise OverlapError("the sun raster window holds no cell of the course", where=grid.source,
                            fix="check that the raster covers the course")
-    v = grid.values
-    valid = np.isfinite(v)
-    n_in = int(inside.sum())
-    uncovered = float((inside & ~valid).sum()) / n_in
-    if not (valid & touch).any():
+    # Course first: from here on only the bounding box of the course's cells, and mostly only
+    # the course's own cells as flat arrays.
+    rr, cc = np.flatnonzero(touch_w.any(axis=1)), np.flatnonzero(touch_w.any(axis=0))
+    box = (slice(int(rr[0]), int(rr[-1]) + 1), slice(int(cc[0]), int(cc[-1]) + 1))
+    touch = touch_w[box]
+    del touch_w
+    ct = grid.transform @ Affine.translation(int(cc[0]), int(rr[0]))
+    cgrid = Grid(values=grid.values[box], transform=ct, crs=grid.crs, source=grid.source)
+    rows, cols = np.nonzero(touch)
+    v = cgrid.values
+    vt = v[rows, cols].astype(np.float64)
+    valid_t = np.isfinite(vt)
+    uncovered = 0.0
+    if not valid_t.all():
+        inside = _rasterize(inp.course, cgrid, all_touched=False)
+        if not inside.any():
+            inside = touch
+        uncovered = float((inside & ~np.isfinite(v)).sum()) / float(inside.sum())
+    if not valid_t.any():
         raise InputError("the sun raster holds only nodata over the course", where=grid.source,
                          fix="give a raster with values over the course")
     if 100 * uncovered > max_uncovered_pct:
@@ -302,13 +523,15 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         notes.append(f"{grid.source}: {100 * uncovered:.1f} % of the course has no sun data; filled from the "
                      "nearest cells")
     lo, hi = ENCODING_RANGE[inp.encoding]
-    vv = v[touch & valid]
+    vv = vt[valid_t]
     tol = 1e-6 * max(1.0, hi)
     if vv.min() < lo - tol or vv.max() > hi + tol:
         raise InputError(f"sun raster values {vv.min():.4g} … {vv.max():.4g} are outside the range "
                          f"{lo:g} … {hi:g} of the declared encoding {inp.encoding!r}", where=grid.source,
                          fix="set [inputs] sun_encoding to fraction (0–1), percent (0–100) or wh_m2")
-    vals = _fill_nearest(np.where(valid, v, 0.0), valid).astype(np.float64)
+    if not valid_t.all():
+        ok = np.isfinite(v)
+        vt = _fill_nearest(np.where(ok, v, 0.0), ok)[rows, cols].astype(np.float64)
 
     breaks = list(settings.exposure_breaks or default_breaks(inp.encoding, window_hours))
     labels = settings.exposure_labels
@@ -316,82 +539,103 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         raise InputError(f"{len(breaks)} exposure breaks need {len(breaks) + 1} labels, got {len(labels)}",
                          where="[zoning]", fix="give one label more than breaks")
     n_exp = len(labels)
-    exp_idx = np.digitize(vals, breaks).astype(np.int64)
+    exp_t = np.digitize(vt, breaks)
 
-    if inp.slope_deg is not None:
-        slope = _fill_nearest(np.nan_to_num(inp.slope_deg.values, nan=0.0), np.isfinite(inp.slope_deg.values))
-        slope = slope.astype(np.float64)
+    def on_cells(g: Grid | None) -> np.ndarray | None:
+        if g is None:
+            return None
+        a = g.values[box]
+        at = a[rows, cols].astype(np.float64)
+        if not np.isfinite(at).all():
+            ok = np.isfinite(a)
+            at = _fill_nearest(np.where(ok, a, 0.0), ok)[rows, cols].astype(np.float64) if ok.any() else \
+                np.zeros_like(at)
+        return at
+
+    slope_t = on_cells(inp.slope_deg)
+    if slope_t is not None:
         sbreaks = list(settings.slope_breaks_deg)
-        slope_idx = np.digitize(slope, sbreaks).astype(np.int64)
+        slope_idx_t = np.digitize(slope_t, sbreaks)
         n_slope = len(sbreaks) + 1
         edges = [0.0] + sbreaks + [90.0]
         slope_labels = [f"{edges[i]:g}–{edges[i + 1]:g}°" for i in range(n_slope)]
     else:
-        slope = np.zeros(grid.shape)
-        slope_idx = np.zeros(grid.shape, dtype=np.int64)
+        slope_idx_t = 0
         n_slope = 1
         slope_labels = ["n/a"]
-    aspect = (inp.aspect_deg.values.astype(np.float64) if inp.aspect_deg is not None else None)
+    aspect_t = None
+    if inp.aspect_deg is not None:
+        aspect_t = np.nan_to_num(inp.aspect_deg.values[box][rows, cols].astype(np.float64), nan=0.0)
 
-    elev = inp.elevation_m.values if inp.elevation_m is not None else None
-    dist, start_xy, finish_xy, dnotes = distance_along_course(touch, grid, inp.start_xy, inp.centreline, elev)
+    elev = inp.elevation_m.values[box] if inp.elevation_m is not None else None
+    dist_t, start_xy, finish_xy, dnotes = distance_of_cells(rows, cols, cgrid, inp.start_xy, inp.centreline, elev)
     notes += dnotes
-    dist = np.where(touch, dist, 0.0)
     L = settings.section_length_m
     if inp.markers:
-        mk = sorted((_nearest_dist(dist, touch, grid, x, y), name) for name, x, y in inp.markers)
+        px, py = _cell_xy(cgrid, rows, cols)
+        mk = sorted((float(dist_t[int(np.argmin((px - x) ** 2 + (py - y) ** 2))]), name)
+                    for name, x, y in inp.markers)
         mdist = np.array([m[0] for m in mk])
-        sec_idx = np.searchsorted(mdist, dist, side="right").astype(np.int64)
+        sec_t = np.searchsorted(mdist, dist_t, side="right")
         sec_names = ["start"] + [m[1] for m in mk]
     else:
-        sec_idx = np.floor(dist / L).astype(np.int64)
+        sec_t = np.floor(dist_t / L).astype(np.int64)
         sec_names = None
-    n_sec = int(sec_idx[touch].max()) + 1
 
-    code = (sec_idx * n_exp + exp_idx) * n_slope + slope_idx + 1
-    code = np.where(touch, code, 0).astype(np.int32)
-    speckle = int(max(2, (settings.min_zone_area_m2 / 8.0) / grid.cell_area_m2))
-    if speckle > 1 and touch.sum() > speckle:
-        code = sieve(code, size=speckle, mask=touch, connectivity=4)
-        code = np.where(touch, code, 0).astype(np.int32)
-
-    polys, pcodes = [], []
-    for gj, val in shapes(code, mask=touch & (code > 0), connectivity=4, transform=grid.transform):
-        polys.append(shapely.geometry.shape(gj))
-        pcodes.append(int(val))
-    region = rio_rasterize([(g, i + 1) for i, g in enumerate(polys)], out_shape=grid.shape,
-                          transform=grid.transform, fill=0, dtype="int32")
-    nreg = len(polys) + 1
-    rflat = region.ravel()
-    cnt = np.bincount(rflat, minlength=nreg).astype(np.float64)
+    code_t = ((sec_t * n_exp + exp_t) * n_slope + slope_idx_t + 1).astype(np.int32)
+    code = np.zeros(touch.shape, dtype=np.int32)
+    code[rows, cols] = code_t
+    speckle = int(max(2, (settings.min_zone_area_m2 / 8.0) / cgrid.cell_area_m2))
+    if speckle > 1 and rows.size > speckle:
+        code_t = sieve(code, size=speckle, mask=touch, connectivity=4)[rows, cols]
+        code[:] = 0
+        code[rows, cols] = code_t
+    region, n_reg = _label_regions(code)
+    region, n_reg = _merge_small_regions(region, n_reg, code, touch, cgrid, settings.min_zone_area_m2,
+                                         n_exp, n_slope)
+    region_t = region[rows, cols]
+    nreg = n_reg + 1
+    cnt = np.bincount(region_t, minlength=nreg).astype(np.float64)
     cnt[cnt == 0] = np.nan
+    reg_code = np.zeros(nreg, dtype=np.int64)
+    reg_code[region_t] = code_t
 
     def mean(a: np.ndarray) -> np.ndarray:
-        return np.bincount(rflat, weights=a.ravel(), minlength=nreg) / cnt
+        return np.bincount(region_t, weights=a, minlength=nreg) / cnt
 
-    r_sun = mean(vals)
-    r_slope = mean(slope)
-    r_sec = mean(1.0 / np.cos(np.radians(np.clip(slope, 0, 85))))
-    r_dist = mean(dist)
-    if aspect is not None:
-        a_ok = np.nan_to_num(aspect, nan=0.0)
-        r_as = np.bincount(rflat, weights=np.sin(np.radians(a_ok)).ravel(), minlength=nreg)
-        r_ac = np.bincount(rflat, weights=np.cos(np.radians(a_ok)).ravel(), minlength=nreg)
+    r_sun = mean(vt)
+    r_dist = mean(dist_t)
+    if slope_t is not None:
+        r_slope = mean(slope_t)
+        r_sec = mean(1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))))
+    else:
+        r_slope, r_sec = np.zeros(nreg), np.ones(nreg)
+    if aspect_t is not None:
+        r_as = np.bincount(region_t, weights=np.sin(np.radians(aspect_t)), minlength=nreg)
+        r_ac = np.bincount(region_t, weights=np.cos(np.radians(aspect_t)), minlength=nreg)
         r_aspect = np.degrees(np.arctan2(r_as, r_ac)) % 360.0
     else:
         r_aspect = np.full(nreg, np.nan)
 
-    # Clip the regions to the exact course and split multi-part pieces.
-    reg_geoms = np.array(polys, dtype=object)
-    clipped = shapely.intersection(reg_geoms, inp.course)
+    # One polygon per region (each region is 4-connected), clipped to the exact course.
+    polys: dict[int, BaseGeometry] = {}
+    for gj, val in shapes(region, mask=region > 0, connectivity=4, transform=ct):
+        r = int(val)
+        g = _polygon_from_geojson(gj)
+        polys[r] = shapely.union(polys[r], g) if r in polys else g
+    reg_ids = sorted(polys)
+    clipped = _clip_to(np.array([polys[r] for r in reg_ids], dtype=object), inp.course)
     pieces = []
-    for i, g in enumerate(clipped):
+    for r, g in zip(reg_ids, clipped, strict=True):
         for part in _polygons(g):
             if part.area > 0:
-                pieces.append({"geom": part, "region": i + 1, "code": pcodes[i], "area": part.area})
+                pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
     merged = _merge_small(pieces, settings.min_zone_area_m2, n_exp, n_slope)
 
-    rows = []
+    cols_out: dict[str, list] = {c: [] for c in (
+        "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
+        "irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2", "area_m2")}
+    geoms = []
     for z in merged:
         regs = np.array(z["regions"])
         w = np.array(z["weights"])
@@ -412,36 +656,33 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
             section = sec_names[min(sc, len(sec_names) - 1)]
         else:
             section = f"{sc * L:g}–{(sc + 1) * L:g} m"
-        rows.append({
-            "exposure_class": labels[ex], "exposure_rank": int(ex), "slope_class": slope_labels[sl],
-            "section": section, "section_index": int(sc),
-            "sun_fraction": (sun_mean if inp.encoding == "fraction" else
-                             sun_mean / 100.0 if inp.encoding == "percent" else float("nan")),
-            "irradiation_wh_m2": sun_mean if inp.encoding == "wh_m2" else float("nan"),
-            "slope_deg": float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum),
-            "aspect_deg": aspect_mean,
-            "distance_from_start_m": float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum),
-            "map_area_m2": float(z["geom"].area),
-            "area_m2": float(z["geom"].area * sec_mean),
-            "geometry": z["geom"],
-        })
-    zones = gpd.GeoDataFrame(rows, geometry="geometry", crs=grid.crs)
-    zones = zones.sort_values(["distance_from_start_m", "exposure_rank"], kind="stable").reset_index(drop=True)
-    zones.insert(0, "course_order", np.arange(1, len(zones) + 1, dtype=np.int64))
-    zones.insert(0, "zone_id", np.arange(1, len(zones) + 1, dtype=np.int64))
-    exposure_grid = Grid(values=np.where(touch, exp_idx, -1).astype(np.float32), transform=grid.transform,
-                         crs=grid.crs, source="exposure class index")
-    missing = [c.name for c in ZONING if c.name not in zones.columns]
+        area = float(z["geom"].area)
+        for name, value in (
+                ("exposure_class", labels[ex]), ("exposure_rank", int(ex)), ("slope_class", slope_labels[sl]),
+                ("section", section), ("section_index", int(sc)),
+                ("sun_fraction", sun_mean if inp.encoding == "fraction" else
+                 sun_mean / 100.0 if inp.encoding == "percent" else float("nan")),
+                ("irradiation_wh_m2", sun_mean if inp.encoding == "wh_m2" else float("nan")),
+                ("slope_deg", float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum)),
+                ("aspect_deg", aspect_mean),
+                ("distance_from_start_m", float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum)),
+                ("map_area_m2", area), ("area_m2", area * sec_mean)):
+            cols_out[name].append(value)
+        geoms.append(z["geom"])
+    # Course order: mean distance from the start, then exposure rank (stable).
+    order = np.lexsort((np.asarray(cols_out["exposure_rank"], dtype=np.int64),
+                        np.asarray(cols_out["distance_from_start_m"], dtype=np.float64))).tolist()
+    n = len(order)
+    table: dict[str, list] = {"zone_id": list(range(1, n + 1)), "course_order": list(range(1, n + 1))}
+    table.update({k: [vals[i] for i in order] for k, vals in cols_out.items()})
+    exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
+    exp_grid[rows, cols] = exp_t
+    exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
+    missing = [c.name for c in ZONING if c.name not in table]
     assert not missing, missing  # internal contract; tests check it too
-    return ZoningResult(zones=zones, start_xy=start_xy, finish_xy=finish_xy, exposure_breaks=tuple(breaks),
+    return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=grid.crs,
+                        start_xy=start_xy, finish_xy=finish_xy, exposure_breaks=tuple(breaks),
                         uncovered_share=uncovered, notes=tuple(notes), exposure_grid=exposure_grid)
-
-
-def _nearest_dist(dist: np.ndarray, mask: np.ndarray, grid: Grid, x: float, y: float) -> float:
-    xs, ys = grid.cell_centres()
-    rows, cols = np.nonzero(mask)
-    i = int(np.argmin((xs[cols] - x) ** 2 + (ys[rows] - y) ** 2))
-    return float(dist[rows[i], cols[i]])
 
 
 def _polygons(g: BaseGeometry) -> list[BaseGeometry]:
