@@ -30,6 +30,7 @@ from shapely.geometry.base import BaseGeometry
 
 from .columns import ZONING
 from .errors import InputError, OverlapError
+from .geometry import geometry_from_geojson
 from .grid import Grid
 from .settings import Zoning
 
@@ -111,11 +112,53 @@ class ZoningResult:
         return gpd.GeoDataFrame(dict(self.table), geometry=list(self.geometries), crs=self.crs)
 
 
-def _rasterize(geom: BaseGeometry, grid: Grid, all_touched: bool) -> np.ndarray:
+def _rasterize(geom: BaseGeometry, grid: Grid, all_touched: bool, band_rows: int = 128,
+               min_vertices: int = 1000) -> np.ndarray:
+    """Cells of *grid* inside *geom* (centre inside, or touched with *all_touched*), as booleans.
+
+    ``rasterio.features.rasterize`` (GDAL's scan-line fill) costs about rows × vertices, which for
+    a long, winding course outline on a tall window is most of the zoning time.  The grid is
+    therefore burnt in bands of *band_rows* rows, each with the outline clipped
+    (``shapely.clip_by_rect``) to the band plus one cell on every side: the clip's own edges fall
+    outside the band's cells, so every band is burnt exactly as the whole grid would be.  Outlines
+    of fewer than *min_vertices* vertices, and short grids, are burnt in one pass.
+    """
+    from affine import Affine
     from rasterio.features import rasterize
 
-    return rasterize([(geom, 1)], out_shape=grid.shape, transform=grid.transform, fill=0,
-                     all_touched=all_touched, dtype="uint8").astype(bool)
+    h, w = grid.shape
+    t = grid.transform
+    if h <= 2 * band_rows or shapely.get_num_coordinates(geom) < min_vertices or t.b != 0 or t.d != 0 or t.e >= 0:
+        return rasterize([(geom, 1)], out_shape=grid.shape, transform=t, fill=0,
+                         all_touched=all_touched, dtype="uint8").astype(bool)
+    out = np.zeros((h, w), dtype=bool)
+    ch, cw = -t.e, t.a
+    x0, x1 = t.c - cw, t.c + cw * (w + 1)
+    for r0 in range(0, h, band_rows):
+        r1 = min(h, r0 + band_rows)
+        part = shapely.clip_by_rect(geom, x0, t.f - ch * (r1 + 1), x1, t.f - ch * (r0 - 1))
+        burn = _as_arrays(part)
+        if not burn:
+            continue
+        out[r0:r1] = rasterize(burn, out_shape=(r1 - r0, w), transform=t * Affine.translation(0, r0),
+                               fill=0, all_touched=all_touched, dtype="uint8").astype(bool)
+    return out
+
+
+def _as_arrays(geom: BaseGeometry) -> list[tuple[dict, int]]:
+    """(GeoJSON-like polygon with coordinate arrays, 1) per polygon part of *geom*, for rasterize.
+
+    rasterio reads coordinate arrays directly; ``__geo_interface__`` would first build tuples of
+    every vertex in Python.  The parts of a valid polygon are disjoint, so burning them one by one
+    burns their union.
+    """
+    out = []
+    for q in shapely.get_parts(geom):
+        if q.geom_type != "Polygon" or q.is_empty:
+            continue
+        rings = [shapely.get_coordinates(q.exterior)] + [shapely.get_coordinates(r) for r in q.interiors]
+        out.append(({"type": "Polygon", "coordinates": rings}, 1))
+    return out
 
 
 def _fill_nearest(values: np.ndarray, valid: np.ndarray) -> np.ndarray:
@@ -143,7 +186,7 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
                     step_m: float = LATTICE_STEP_M) -> np.ndarray:
     """Position along *line* [m] of the centres of cells (rows, cols).
 
-    ``shapely.line_locate_point`` (GEOS projection) is evaluated on a lattice of about *step_m*
+    ``shapely.line_locate_point`` (GEOS linear referencing) is evaluated on a lattice of about *step_m*
     around the cells only, and interpolated bilinearly in between: on a 1 m grid that is about 40×
     fewer projections.  When the cells are coarser than *step_m* every cell is projected exactly.
     """
@@ -152,26 +195,28 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
     if s == 1 or rows.size < 256:
         x, y = _cell_xy(grid, rows, cols)
         return shapely.line_locate_point(line, shapely.points(x, y))
+    from scipy.ndimage import map_coordinates
+
     br, bc = rows // s, cols // s
     r0, c0 = int(br.min()), int(bc.min())
-    br, bc = br - r0, bc - c0
-    width = int(bc.max()) + 2
-    need = np.zeros((int(br.max()) + 2) * width, dtype=bool)
-    flat = br * width + bc
-    for off in (0, 1, width, width + 1):
-        need[flat + off] = True
-    nodes = np.flatnonzero(need)
-    ni, nj = np.divmod(nodes, width)
+    width = int(bc.max()) - c0 + 2
+    height = int(br.max()) - r0 + 2
+    # Lattice blocks holding cells (bincount: much faster than fancy-index assignment), and the
+    # nodes at their four corners.
+    hit = (np.bincount((br - r0) * width + (bc - c0), minlength=height * width) > 0).reshape(height, width)
+    need = hit.copy()
+    need[1:, :] |= hit[:-1, :]
+    need[:, 1:] |= hit[:, :-1]
+    need[1:, 1:] |= hit[:-1, :-1]
+    ni, nj = np.nonzero(need)
     x, y = _cell_xy(grid, (ni + r0) * s, (nj + c0) * s)
     # Lattice nodes lie up to one step beyond the outermost cells; GEOS clamps positions beyond the
     # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
     margin = 2.0 * s * max(cw, ch)
-    lat = np.full(need.size, np.nan)
-    lat[nodes] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
-    tr = (rows - (br + r0) * s) / s
-    tc = (cols - (bc + c0) * s) / s
-    d = ((1.0 - tr) * ((1.0 - tc) * lat[flat] + tc * lat[flat + 1])
-         + tr * ((1.0 - tc) * lat[flat + width] + tc * lat[flat + width + 1]))
+    lat = np.zeros(need.shape)
+    lat[ni, nj] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
+    # Bilinear interpolation between the four lattice nodes around each cell (all of them computed).
+    d = map_coordinates(lat, [rows / s - r0, cols / s - c0], order=1, mode="nearest", prefilter=False)
     return np.clip(d, 0.0, line.length)
 
 
@@ -192,7 +237,7 @@ def _prolong(line: BaseGeometry, margin: float) -> BaseGeometry:
 
 def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
                           centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
-                          max_nodes: int = 40_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
+                          max_nodes: int = 12_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
                                                             list[str]]:
     """Distance from the start [m] of every masked cell, following the course.
 
@@ -208,7 +253,7 @@ def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, f
 
 def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
                       centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
-                      max_nodes: int = 40_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
+                      max_nodes: int = 12_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
                                                         list[str]]:
     """Distance from the start [m] of the course cells (rows, cols) of *grid*, following the course.
 
@@ -257,13 +302,15 @@ def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: 
     cx = t.c + t.a * (ccol * k + k / 2.0)
     cy = t.f + t.e * (crow * k + k / 2.0)
 
-    def far(start_node: int) -> int:
+    def far(start_node: int) -> tuple[int, np.ndarray]:
         d = dijkstra(g, directed=False, indices=start_node)
-        return int(np.argmax(np.where(np.isfinite(d), d, -1)))
+        return int(np.argmax(np.where(np.isfinite(d), d, -1))), d
 
+    d_nodes = None
     if start_xy is None:
-        a_node = far(0)
-        ends = [a_node, far(a_node)]
+        a_node, _ = far(0)
+        b_node, d_from_a = far(a_node)
+        ends = [a_node, b_node]
         if elevation is not None:
             ez = []
             for e in ends:
@@ -276,9 +323,12 @@ def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: 
             start_node = ends[int(np.argmax(cy[ends]))]
             notes.append("start taken as the northern end of the course: no DEM and no start point "
                          "(set [zoning] start_xy to choose)")
+        if start_node == a_node:
+            d_nodes = d_from_a  # the sweep's second run already started there
     else:
         start_node = int(np.argmin((cx - start_xy[0]) ** 2 + (cy - start_xy[1]) ** 2))
-    d_nodes = dijkstra(g, directed=False, indices=start_node)
+    if d_nodes is None:
+        d_nodes = dijkstra(g, directed=False, indices=start_node)
     unreachable = ~np.isfinite(d_nodes)
     if unreachable.any():
         d_nodes[unreachable] = np.nanmax(np.where(unreachable, np.nan, d_nodes))
@@ -358,13 +408,6 @@ def _label_regions(code: np.ndarray) -> tuple[np.ndarray, int]:
     return region, n_reg
 
 
-def _polygon_from_geojson(gj: dict) -> BaseGeometry:
-    """A shapely polygon from a GeoJSON-like polygon mapping (as ``rasterio.features.shapes`` yields),
-    built from coordinate arrays (much faster than ``shapely.geometry.shape`` for long rings)."""
-    rings = [shapely.linearrings(np.asarray(r, dtype=np.float64)) for r in gj["coordinates"]]
-    return shapely.polygons(rings[0], holes=rings[1:] or None)
-
-
 def _clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
     """Intersection of each polygon with *course*, exact.
 
@@ -413,7 +456,7 @@ def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch
         nb[i][j] = nb[i].get(j, 0.0) + length
         nb[j][i] = nb[j].get(i, 0.0) + length
     reg_code = np.zeros(n_reg + 1, dtype=np.int64)
-    reg_code[region.ravel()] = code.ravel()
+    reg_code[region[touch]] = code[touch]
     key = [((c - 1) // n_slope % n_exp, (c - 1) % n_slope, (c - 1) // (n_slope * n_exp)) for c in reg_code.tolist()]
     alive = np.ones(n_reg + 1, dtype=bool)
     alive[0] = False
@@ -485,6 +528,15 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         ``table`` holds the columns declared in :data:`courseplan.columns.ZONING`, plus
         ``aspect_deg``; ``geometries`` the zone polygons; ``zones`` both as a GeoDataFrame.
     """
+    import rasterio
+
+    # One GDAL environment for the many rasterize/sieve/shapes calls (each would set one up).
+    with rasterio.Env():
+        return _zone_course(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
+
+
+def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
+                 max_uncovered_pct: float) -> ZoningResult:
     from affine import Affine
     from rasterio.features import shapes, sieve
 
@@ -504,7 +556,7 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     cgrid = Grid(values=grid.values[box], transform=ct, crs=grid.crs, source=grid.source)
     rows, cols = np.nonzero(touch)
     v = cgrid.values
-    vt = v[rows, cols].astype(np.float64)
+    vt = v[touch].astype(np.float64)
     valid_t = np.isfinite(vt)
     uncovered = 0.0
     if not valid_t.all():
@@ -531,7 +583,7 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                          fix="set [inputs] sun_encoding to fraction (0–1), percent (0–100) or wh_m2")
     if not valid_t.all():
         ok = np.isfinite(v)
-        vt = _fill_nearest(np.where(ok, v, 0.0), ok)[rows, cols].astype(np.float64)
+        vt = _fill_nearest(np.where(ok, v, 0.0), ok)[touch].astype(np.float64)
 
     breaks = list(settings.exposure_breaks or default_breaks(inp.encoding, window_hours))
     labels = settings.exposure_labels
@@ -545,10 +597,10 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         if g is None:
             return None
         a = g.values[box]
-        at = a[rows, cols].astype(np.float64)
+        at = a[touch].astype(np.float64)
         if not np.isfinite(at).all():
             ok = np.isfinite(a)
-            at = _fill_nearest(np.where(ok, a, 0.0), ok)[rows, cols].astype(np.float64) if ok.any() else \
+            at = _fill_nearest(np.where(ok, a, 0.0), ok)[touch].astype(np.float64) if ok.any() else \
                 np.zeros_like(at)
         return at
 
@@ -565,7 +617,7 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         slope_labels = ["n/a"]
     aspect_t = None
     if inp.aspect_deg is not None:
-        aspect_t = np.nan_to_num(inp.aspect_deg.values[box][rows, cols].astype(np.float64), nan=0.0)
+        aspect_t = np.nan_to_num(inp.aspect_deg.values[box][touch].astype(np.float64), nan=0.0)
 
     elev = inp.elevation_m.values[box] if inp.elevation_m is not None else None
     dist_t, start_xy, finish_xy, dnotes = distance_of_cells(rows, cols, cgrid, inp.start_xy, inp.centreline, elev)
@@ -584,16 +636,16 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
 
     code_t = ((sec_t * n_exp + exp_t) * n_slope + slope_idx_t + 1).astype(np.int32)
     code = np.zeros(touch.shape, dtype=np.int32)
-    code[rows, cols] = code_t
+    code[touch] = code_t
     speckle = int(max(2, (settings.min_zone_area_m2 / 8.0) / cgrid.cell_area_m2))
     if speckle > 1 and rows.size > speckle:
-        code_t = sieve(code, size=speckle, mask=touch, connectivity=4)[rows, cols]
+        code_t = sieve(code, size=speckle, mask=touch, connectivity=4)[touch]
         code[:] = 0
-        code[rows, cols] = code_t
+        code[touch] = code_t
     region, n_reg = _label_regions(code)
     region, n_reg = _merge_small_regions(region, n_reg, code, touch, cgrid, settings.min_zone_area_m2,
                                          n_exp, n_slope)
-    region_t = region[rows, cols]
+    region_t = region[touch]
     nreg = n_reg + 1
     cnt = np.bincount(region_t, minlength=nreg).astype(np.float64)
     cnt[cnt == 0] = np.nan
@@ -621,7 +673,7 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     polys: dict[int, BaseGeometry] = {}
     for gj, val in shapes(region, mask=region > 0, connectivity=4, transform=ct):
         r = int(val)
-        g = _polygon_from_geojson(gj)
+        g = geometry_from_geojson(gj)
         polys[r] = shapely.union(polys[r], g) if r in polys else g
     reg_ids = sorted(polys)
     clipped = _clip_to(np.array([polys[r] for r in reg_ids], dtype=object), inp.course)
@@ -676,7 +728,7 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     table: dict[str, list] = {"zone_id": list(range(1, n + 1)), "course_order": list(range(1, n + 1))}
     table.update({k: [vals[i] for i in order] for k, vals in cols_out.items()})
     exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
-    exp_grid[rows, cols] = exp_t
+    exp_grid[touch] = exp_t
     exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
     missing = [c.name for c in ZONING if c.name not in table]
     assert not missing, missing  # internal contract; tests check it too

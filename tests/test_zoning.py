@@ -181,3 +181,29 @@ def test_zone_areas_sum_to_course_area(poly, seed, min_area):
     assert z["map_area_m2"].sum() == pytest.approx(poly.area, rel=5e-3)
     assert shapely.union_all(z.geometry.values).symmetric_difference(poly).area < 1e-6 * poly.area + 1e-6
     assert list(z["zone_id"]) == list(range(1, len(z) + 1))
+
+
+@settings(max_examples=30, deadline=None)
+@given(seed=st.integers(0, 100_000), amp=st.floats(5.0, 120.0), width=st.floats(2.0, 40.0),
+       band=st.sampled_from([7, 32, 128]), touched=st.booleans())
+def test_banded_rasterize_equals_one_pass(seed, amp, width, band, touched):
+    # Reference: rasterio.features.rasterize over the whole grid in one pass (GDAL's scan-line fill);
+    # the banded burn must give exactly the same cells, for cell-centre and all-touched rules.
+    from rasterio.features import rasterize
+
+    from courseplan.zoning import _rasterize
+
+    rng = np.random.default_rng(seed)
+    t = np.linspace(0.0, 1.0, 1500)
+    x = 150.0 + amp * np.sin(2 * np.pi * (1 + 3 * rng.random()) * t + rng.random()) + rng.normal(0, 0.7, t.size)
+    y = -20.0 - 900.0 * t
+    course = LineString(np.column_stack([x, y])).buffer(width / 2.0, quad_segs=3)
+    cell = float(rng.choice([0.5, 1.0, 2.0]))
+    tr = Affine(cell, 0, -0.37, 0, -cell, 0.21)
+    shape = (int(960 / cell), int(300 / cell))
+    grid = Grid(values=np.zeros(shape, np.float32), transform=tr, crs=CRS32632, source="synthetic")
+    one = rasterize([(course, 1)], out_shape=shape, transform=tr, fill=0, all_touched=touched,
+                    dtype="uint8").astype(bool)
+    banded = _rasterize(course, grid, touched, band_rows=band, min_vertices=0)
+    assert one.sum() > 0
+    assert np.array_equal(banded, one), int((banded != one).sum())

@@ -69,14 +69,53 @@ def read_course(path: Path, feature: str | None = None) -> Course:
         Which feature to take when the file holds several polygons: a value of a ``name`` field or
         a 0-based index.
 
+    A GeoJSON file (RFC 7946, with or without the legacy ``crs`` member of the 2008 GeoJSON
+    specification) is parsed with :mod:`json` and :func:`shapely.geometry.shape`, without GDAL: that
+    keeps pandas and geopandas out of the zoning stage.  Every other format, and any GeoJSON the
+    direct parser does not understand, goes through GDAL (``geopandas.read_file`` on pyogrio); both
+    paths share the selection and checks below.
+
     Raises
     ------
     MissingInputError, InputError, GeometryError, CRSError
         With one line saying what is wrong and how to fix it.
     """
+    p = check_readable(path, "course")
+    table = _read_geojson(p) if p.suffix.lower() in (".geojson", ".json") else None
+    if table is None:
+        table = _read_with_gdal(p)
+    crs, columns, geoms, props = table
+    if crs is None:
+        raise CRSError("the course file has no CRS", where=str(p),
+                       fix="save it with a CRS, or assign one (e.g. ogr2ogr -a_srs EPSG:32632 out.gpkg in.shp)")
+    kept = [i for i, g in enumerate(geoms) if g is not None]
+    polys = [i for i in kept if geoms[i].geom_type in ("Polygon", "MultiPolygon")]
+    if not polys:
+        kinds = ", ".join(sorted({geoms[i].geom_type for i in kept})) or "no geometries"
+        raise GeometryError(f"the course file holds no polygon (found: {kinds})", where=str(p),
+                            fix="draw the course outline as a polygon")
+    name_col = next((c for c in columns if c.lower() in ("name", "course", "label")), None)
+    names = [props[i].get(name_col) if name_col else None for i in polys]
+    if len(polys) > 1 and feature is None:
+        shown = [str(v) for v in names] if name_col else [str(i) for i in range(len(polys))]
+        raise GeometryError(f"the course file holds {len(polys)} polygons ({', '.join(shown[:8])})",
+                            where=str(p),
+                            fix="pick one with --course-feature NAME_OR_INDEX or [inputs] course_feature")
+    k = _pick(names, feature, name_col, p) if feature is not None else 0
+    geom = geoms[polys[k]]
+    name = str(names[k]) if name_col and names[k] is not None else p.stem
+    check_coordinates_match_crs(tuple(geom.bounds), crs, str(p))
+    geom, notes = repair_polygon(geom, str(p))
+    return Course(geometry=geom, crs=crs, name=name, source=str(p), warnings=tuple(notes))
+
+
+Table = tuple["CRS | None", list[str], list["BaseGeometry | None"], list[dict]]
+
+
+def _read_with_gdal(p: Path) -> Table:
+    """CRS, property names, geometries and properties of a vector file read by GDAL (pyogrio)."""
     import geopandas as gpd
 
-    p = check_readable(path, "course")
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -85,43 +124,66 @@ def read_course(path: Path, feature: str | None = None) -> Course:
         raise InputError(f"cannot read the course as a vector file ({type(exc).__name__}: "
                          f"{str(exc).splitlines()[0] if str(exc) else 'no detail'})", where=str(p),
                          fix="give a GeoJSON, GeoPackage or Shapefile holding the course polygon") from None
-    if gdf.crs is None:
-        raise CRSError("the course file has no CRS", where=str(p),
-                       fix="save it with a CRS, or assign one (e.g. ogr2ogr -a_srs EPSG:32632 out.gpkg in.shp)")
-    crs = CRS.from_user_input(gdf.crs)
-    gdf = gdf[gdf.geometry.notna()]
-    is_poly = gdf.geometry.geom_type.isin(["Polygon", "MultiPolygon"])
-    polys = gdf[is_poly]
-    if len(polys) == 0:
-        kinds = ", ".join(sorted(set(gdf.geometry.geom_type))) or "no geometries"
-        raise GeometryError(f"the course file holds no polygon (found: {kinds})", where=str(p),
-                            fix="draw the course outline as a polygon")
-    name_col = next((c for c in polys.columns if c.lower() in ("name", "course", "label")), None)
-    if len(polys) > 1:
-        if feature is None:
-            names = ([str(v) for v in polys[name_col]] if name_col else [str(i) for i in range(len(polys))])
-            raise GeometryError(f"the course file holds {len(polys)} polygons ({', '.join(names[:8])})",
-                                where=str(p),
-                                fix="pick one with --course-feature NAME_OR_INDEX or [inputs] course_feature")
-        polys = _pick(polys, feature, name_col, p)
-    elif feature is not None:
-        polys = _pick(polys, feature, name_col, p)
-    row = polys.iloc[0]
-    geom = row.geometry
-    name = str(row[name_col]) if name_col and row[name_col] is not None else p.stem
-    check_coordinates_match_crs(tuple(geom.bounds), crs, str(p))
-    geom, notes = repair_polygon(geom, str(p))
-    return Course(geometry=geom, crs=crs, name=name, source=str(p), warnings=tuple(notes))
+    crs = CRS.from_user_input(gdf.crs) if gdf.crs is not None else None
+    columns = [str(c) for c in gdf.columns if c != gdf.geometry.name]
+    geoms = list(gdf.geometry)
+    props = gdf[columns].to_dict("records") if columns else [{} for _ in geoms]
+    return crs, columns, geoms, props
 
 
-def _pick(polys, feature: str, name_col: str | None, p: Path):
+def _read_geojson(p: Path) -> Table | None:
+    """CRS, property names, geometries and properties of a GeoJSON file, or None to let GDAL try.
+
+    Without a ``crs`` member the coordinates are WGS 84 longitude/latitude (RFC 7946 §4), reported
+    as EPSG:4326 in x = longitude order, as GDAL does.
+    """
+    import json
+
+    from ..geometry import geometry_from_geojson
+
+    try:
+        doc = json.loads(p.read_bytes())
+        kind = doc.get("type")
+        if kind == "FeatureCollection":
+            feats = doc["features"]
+        elif kind == "Feature":
+            feats = [doc]
+        else:
+            return None
+        crs_member = doc.get("crs")
+        if crs_member is None:
+            crs = CRS.from_epsg(4326)
+        elif crs_member.get("type") == "name":
+            crs = CRS.from_user_input(crs_member["properties"]["name"])
+        else:
+            return None
+        columns: list[str] = []
+        geoms: list[BaseGeometry | None] = []
+        props: list[dict] = []
+        for f in feats:
+            if not isinstance(f, dict) or f.get("type") != "Feature":
+                return None
+            g = f.get("geometry")
+            geoms.append(geometry_from_geojson(g) if g else None)
+            pr = f.get("properties") or {}
+            if not isinstance(pr, dict):
+                return None
+            columns.extend(c for c in pr if c not in columns)
+            props.append(pr)
+    except Exception:  # anything unusual: GDAL reads it, or says clearly why it cannot
+        return None
+    return crs, columns, geoms, props
+
+
+def _pick(names: list, feature: str, name_col: str | None, p: Path) -> int:
+    """Index among the polygons of the one named *feature* (a name-field value or a 0-based index)."""
     if name_col is not None:
-        hit = polys[polys[name_col].astype(str) == str(feature)]
+        hit = [i for i, v in enumerate(names) if str(v) == str(feature)]
         if len(hit) == 1:
-            return hit
-    if str(feature).isdigit() and int(feature) < len(polys):
-        return polys.iloc[[int(feature)]]
-    valid = ([str(v) for v in polys[name_col]] if name_col else []) + [str(i) for i in range(len(polys))]
+            return hit[0]
+    if str(feature).isdigit() and int(feature) < len(names):
+        return int(feature)
+    valid = ([str(v) for v in names] if name_col else []) + [str(i) for i in range(len(names))]
     raise GeometryError(f"no course polygon matches {feature!r}", where=str(p),
                         fix="use one of: " + ", ".join(valid[:12]))
 

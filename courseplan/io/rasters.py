@@ -59,7 +59,7 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
         When the raster does not overlap the bounds (the message gives both extents and CRSs).
     """
     import rasterio
-    from rasterio.enums import Resampling
+    from rasterio.enums import MaskFlags, Resampling
     from rasterio.warp import reproject
     from rasterio.windows import from_bounds
 
@@ -90,11 +90,15 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
         win = win.round_offsets(op="floor").round_lengths(op="ceil")
         if not partial:
             win = win.intersection(rasterio.windows.Window(0, 0, ds.width, ds.height))
-        data = ds.read(band, window=win, masked=True, boundless=partial).astype(np.float32)
         wtransform = ds.window_transform(win)
-        arr = data.filled(np.nan)
+        flags = set(ds.mask_flag_enums[band - 1])
+        if partial or flags & {MaskFlags.per_dataset, MaskFlags.alpha}:
+            # Beyond the edge, or a mask band / alpha: let GDAL say which cells are valid.
+            arr = ds.read(band, window=win, masked=True, boundless=partial).astype(np.float32).filled(np.nan)
+        else:
+            arr = ds.read(band, window=win, out_dtype="float32")
         if ds.nodata is not None and not np.isnan(ds.nodata):
-            arr[arr == ds.nodata] = np.nan
+            arr[arr == np.float32(ds.nodata)] = np.nan
     if same:
         return Grid(values=arr, transform=wtransform, crs=work_crs, source=f"{path} band {band}")
     # Warp the window onto a grid in the working CRS with about the same cell size.
