@@ -427,6 +427,18 @@ def _clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
     return out
 
 
+def _code_key(code: int, n_exp: int, n_slope: int) -> tuple[int, int, int]:
+    """(exposure class, slope class, section) of a zone code (``(section·n_exp + exposure)·n_slope + slope + 1``)."""
+    c = code - 1
+    return ((c // n_slope) % n_exp, c % n_slope, c // (n_slope * n_exp))
+
+
+def _similarity(ki: tuple[int, int, int], kj: tuple[int, int, int], shared: float) -> tuple:
+    """Merge preference (smaller is better): same exposure first, then slope class, then section,
+    then the longest shared edge."""
+    return (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -shared)
+
+
 def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch: np.ndarray, grid: Grid,
                          min_area: float, n_exp: int, n_slope: int) -> tuple[np.ndarray, int]:
     """Merge regions below *min_area* into the most similar neighbour, on the raster.
@@ -457,7 +469,7 @@ def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch
         nb[j][i] = nb[j].get(i, 0.0) + length
     reg_code = np.zeros(n_reg + 1, dtype=np.int64)
     reg_code[region[touch]] = code[touch]
-    key = [((c - 1) // n_slope % n_exp, (c - 1) % n_slope, (c - 1) // (n_slope * n_exp)) for c in reg_code.tolist()]
+    key = [_code_key(c, n_exp, n_slope) for c in reg_code.tolist()]
     alive = np.ones(n_reg + 1, dtype=bool)
     alive[0] = False
     target = np.arange(n_reg + 1)
@@ -473,8 +485,7 @@ def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch
         for j, length in nb[i].items():
             if not alive[j]:
                 continue
-            ki, kj = key[i], key[j]
-            score = (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -length)
+            score = _similarity(key[i], key[j], length)
             if best_score is None or score < best_score:
                 best, best_score = j, score
         if best is None:
@@ -769,8 +780,7 @@ def _merge_small(pieces: list[dict], min_area: float, n_exp: int, n_slope: int) 
             neighbours[a].add(b)
     # Parent pointers: merged zones live on in the absorbing zone.
     def key(z: dict) -> tuple[int, int, int]:
-        c = z["code"] - 1
-        return ((c // n_slope) % n_exp, c % n_slope, c // (n_slope * n_exp))
+        return _code_key(z["code"], n_exp, n_slope)
 
     stuck: set[int] = set()
     while True:
@@ -788,8 +798,7 @@ def _merge_small(pieces: list[dict], min_area: float, n_exp: int, n_slope: int) 
             shared = zi["geom"].boundary.intersection(zj["geom"].boundary).length
             if shared <= 0:
                 continue
-            kj = key(zj)
-            score = (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -shared)
+            score = _similarity(ki, key(zj), shared)
             if best_score is None or score < best_score:
                 best, best_score = j, score
         if best is None:
