@@ -2,7 +2,7 @@
 
 For each DEM size, in one fresh subprocess per method (so that peak memory belongs to one method):
 
-* **ours** — :func:`courseplan.sunmap.sun_from_dem` over a window of exactly 16 daylight steps
+* **ours** — :func:`courseplan.stages.sun.sun_from_dem` over a window of exactly 16 daylight steps
   (08:00–16:00 local, 30 min) on 15 March at 46.5° N: Horn slope/aspect, then per step the solar
   position, the cast-shadow sweep over the whole DEM, the cosine of incidence, the sun count and
   the beam sum; finally the diffuse part.  Everything the ``sun`` command computes except file I/O.
@@ -57,7 +57,7 @@ def child(n_cells: int, what: str, repeat: int) -> dict:
     from affine import Affine
 
     from courseplan.physics.solar import clear_sky_window
-    from courseplan.sunmap import sun_from_dem
+    from courseplan.stages.sun import sun_from_dem
 
     dem = make_dem(n_cells)
     side = dem.shape[0]

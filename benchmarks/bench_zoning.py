@@ -5,7 +5,7 @@ peak RSS, ``resource.getrusage(RUSAGE_SELF).ru_maxrss``, belongs to one run of o
 
 * **plan** — what the plan does for zoning: :func:`courseplan.io.course.read_course` (the course
   GeoJSON), :func:`courseplan.io.rasters.read_window` (the course bounds plus its 20 m margin) and
-  :func:`courseplan.zoning.zone_course` with ``Zoning()`` defaults, ``window_hours=3.0`` and the
+  :func:`courseplan.stages.zoning.zone_course` with ``Zoning()`` defaults, ``window_hours=3.0`` and the
   ``fraction`` encoding: classify, sieve, polygonise, per-region statistics, distance from the
   start (Dijkstra on the cell grid, no centreline), clip to the course, merge small pieces, order.
   Not the full :func:`courseplan.pipeline.run_plan` (no forecast, dosing, order or outputs).
@@ -50,7 +50,7 @@ import numpy as np
 
 CRS_EPSG = 32632
 X0, Y0 = 400_000.0, 5_200_000.0  # top-left corner of every raster [m]
-BREAKS = [0.35, 0.70]  # default breaks of the fraction encoding (courseplan.zoning.default_breaks)
+BREAKS = [0.35, 0.70]  # default breaks of the fraction encoding (courseplan.stages.zoning.default_breaks)
 COURSE_LENGTH_M, COURSE_WIDTH_M, COURSE_DROP_M, COURSE_WIGGLES = 3000.0, 50.0, 2000.0, 3
 VARIANTS = ("plan", "naive", "minimal")
 
@@ -126,7 +126,7 @@ def run_plan(tif: Path, gj: Path) -> dict:
     from courseplan.io.course import read_course
     from courseplan.io.rasters import read_window
     from courseplan.settings import Zoning
-    from courseplan.zoning import ZoningInputs, zone_course
+    from courseplan.stages.zoning import ZoningInputs, zone_course
 
     course = read_course(gj)
     work = CRS.from_epsg(CRS_EPSG)
@@ -190,7 +190,7 @@ def child(variant: str, tif: Path, gj: Path, profile: Path | None) -> dict:
 
         import courseplan.io.course  # noqa: F401
         import courseplan.io.rasters  # noqa: F401
-        import courseplan.zoning  # noqa: F401
+        import courseplan.stages.zoning  # noqa: F401
     elif variant == "naive":
         import geopandas  # noqa: F401
         import rasterio.features  # noqa: F401
@@ -309,7 +309,7 @@ def main() -> None:
 
     print()
     print("plan = courseplan.io.course.read_course + courseplan.io.rasters.read_window + "
-          "courseplan.zoning.zone_course (Zoning() defaults, window_hours=3.0, fraction); not run_plan")
+          "courseplan.stages.zoning.zone_course (Zoning() defaults, window_hours=3.0, fraction); not run_plan")
     print(f"medians of {a.repeats} runs, one fresh subprocess per run; peak MB = max ru_maxrss of the runs; "
           "base MB = RSS after imports")
     print("polys: plan = zones after merging; naive = clipped polygons given to zonal_stats; "

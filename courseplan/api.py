@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .settings import PlanSettings
+from courseplan.settings import PlanSettings
 
 
 def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite: bool = False, progress=None):
@@ -26,16 +26,16 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     PlanResult
         The result that was written.
     """
-    from .io.loader import load_inputs
-    from .io.outputs import write_outputs
-    from .io.planfile import read_plan
-    from .pipeline import run_plan
+    from courseplan.io.loader import load_inputs
+    from courseplan.io.outputs import write_outputs
+    from courseplan.io.planfile import read_plan
+    from courseplan.pipeline import run_plan
 
     if not isinstance(settings, PlanSettings):
         settings = read_plan(settings)
     out = Path(out_dir)
     if out.exists() and not overwrite:
-        from .errors import OutputError
+        from courseplan.errors import OutputError
 
         raise OutputError("the output folder already exists", where=str(out),
                           fix="choose a new --out folder or add --overwrite")

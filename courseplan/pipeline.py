@@ -16,10 +16,10 @@ import pandas as pd
 from pyproj import CRS, Transformer
 from shapely.geometry.base import BaseGeometry
 
-from .cautions import cautions_for
-from .errors import SettingsError
-from .grid import Grid
-from .settings import PlanSettings
+from courseplan.cautions import cautions_for
+from courseplan.errors import SettingsError
+from courseplan.grid import Grid
+from courseplan.settings import PlanSettings
 
 PRACTICE_HIGH_G_M2 = 150.0
 """Upper end of reported alpine doses per pass, 50–150 g/m² [from memory, domain-data §7]: a
@@ -79,7 +79,7 @@ class PlanResult:
     zones: Any  # GeoDataFrame, working CRS, every declared column
     course: Any  # GeoDataFrame with one row
     observations: Any
-    logistics: Any  # courseplan.logistics.LogisticsResult
+    logistics: Any  # courseplan.stages.logistics.LogisticsResult
     weather: Any
     start_xy: tuple[float, float]
     finish_xy: tuple[float, float]
@@ -117,8 +117,8 @@ def _lonlat(crs: CRS, x: float, y: float) -> tuple[float, float]:
 
 def terrain_on(grid: Grid, dem: Grid) -> tuple[Grid, Grid, Grid]:
     """Slope, aspect (Horn 1981, on the DEM's own cells) and elevation resampled onto *grid*."""
-    from .io.rasters import resample_to  # pure numpy/rasterio warp; no file access
-    from .physics.terrain import slope_aspect_horn
+    from courseplan.io.rasters import resample_to  # pure numpy/rasterio warp; no file access
+    from courseplan.physics.terrain import slope_aspect_horn
 
     dx, dy = dem.cell_size
     slope, aspect = slope_aspect_horn(dem.values, dx, dy)
@@ -150,13 +150,13 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     """
     import geopandas as gpd
 
-    from .agents import get_agent
-    from .conditions import assign_snow
-    from .dosing import apply_dosing
-    from .forecast import weather_from_settings, weather_from_table
-    from .logistics import plan_logistics
-    from .physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
-    from .zoning import ZoningInputs, zone_course
+    from courseplan.agents import get_agent
+    from courseplan.stages.conditions import assign_snow
+    from courseplan.stages.dosing import apply_dosing
+    from courseplan.stages.weather import weather_from_settings, weather_from_table
+    from courseplan.stages.logistics import plan_logistics
+    from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
+    from courseplan.stages.zoning import ZoningInputs, zone_course
 
     def step(name: str) -> None:
         if progress is not None:
@@ -185,7 +185,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
         if inputs.dem is None:
             raise SettingsError("neither a sun raster nor a DEM is given", where="[inputs]",
                                 fix="give --sun SUN.tif or --dem DEM.tif")
-        from .sunmap import sun_from_dem
+        from courseplan.stages.sun import sun_from_dem
 
         grids = sun_from_dem(inputs.dem.values, inputs.dem.transform, inputs.crs, date=pl.date,
                              start=win.start, end=win.end, timezone=pl.timezone, step_minutes=15)

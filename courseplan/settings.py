@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .errors import SettingsError
+from courseplan.errors import SettingsError
 
 SUN_ENCODINGS = ("fraction", "percent", "wh_m2")
 """Accepted encodings of a sun/shade raster: share of the window in sun (0–1), the same in

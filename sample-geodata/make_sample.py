@@ -6,7 +6,7 @@ courseplan.  Only the position (about 46.55° N, 9.25° E, so that sun angles ar
 alpine venue) is real; nothing there resembles this terrain.
 
 The script is deterministic (fixed seed) and uses numpy, rasterio, shapely and pyproj, plus
-``courseplan.sunmap.sun_from_dem`` for the sun raster.  Run it from anywhere::
+``courseplan.stages.sun.sun_from_dem`` for the sun raster.  Run it from anywhere::
 
     python sample-geodata/make_sample.py            # writes next to this file
     python sample-geodata/make_sample.py --check    # also prints statistics along the course
@@ -193,15 +193,15 @@ def _sample(dem: np.ndarray, pts_local: np.ndarray) -> np.ndarray:
 # ----------------------------------------------------------------------------- sun
 
 def sun_raster(dem: np.ndarray, transform):
-    """Sun share of the hold window on the SUN_CELL grid, from ``courseplan.sunmap.sun_from_dem``."""
-    from courseplan.sunmap import sun_from_dem
+    """Sun share of the hold window on the SUN_CELL grid, from ``courseplan.stages.sun.sun_from_dem``."""
+    from courseplan.stages.sun import sun_from_dem
 
     f = int(SUN_CELL / CELL)
     coarse = dem.reshape(dem.shape[0] // f, f, dem.shape[1] // f, f).mean(axis=(1, 3))
     ctr = from_origin(transform.c, transform.f, SUN_CELL, SUN_CELL)
     res = sun_from_dem(coarse, ctr, CRS, date=RACE_DAY, start=WINDOW[0], end=WINDOW[1],
                        timezone=TIMEZONE, step_minutes=15)
-    return np.asarray(res.sun_fraction, dtype="float32"), ctr, "courseplan.sunmap.sun_from_dem"
+    return np.asarray(res.sun_fraction, dtype="float32"), ctr, "courseplan.stages.sun.sun_from_dem"
 
 
 # ----------------------------------------------------------------------------- writers

@@ -154,7 +154,7 @@ def test_agents_file(tmp_path):
 def test_cli_agents_json_and_table():
     from click.testing import CliRunner
 
-    from courseplan.cli_agents import agents_command
+    from courseplan.cli.agents import agents_command
 
     r = CliRunner().invoke(agents_command, ["--json"])
     assert r.exit_code == 0, r.output
@@ -168,7 +168,7 @@ def test_cli_agents_json_and_table():
 def test_cli_agents_bad_file(tmp_path):
     from click.testing import CliRunner
 
-    from courseplan.cli_agents import agents_command
+    from courseplan.cli.agents import agents_command
 
     p = tmp_path / "a.toml"
     p.write_text('[NaCl]\npurity = 7\n', encoding="utf-8")

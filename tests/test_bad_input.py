@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from courseplan.cli import main
+from courseplan.cli.main import main
 
 X0, Y0 = 500_000.0, 5_150_000.0  # metres in EPSG:32632
 SQUARE = [[X0, Y0], [X0 + 200, Y0], [X0 + 200, Y0 + 300], [X0, Y0 + 300], [X0, Y0]]

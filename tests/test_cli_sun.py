@@ -6,7 +6,7 @@ import rasterio
 from affine import Affine
 from click.testing import CliRunner
 
-from courseplan.cli_sun import sun_command
+from courseplan.cli.sun import sun_command
 from courseplan.errors import CRSError, MissingInputError, OverlapError
 from courseplan.io.dem import read_dem
 

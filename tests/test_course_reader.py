@@ -133,7 +133,7 @@ def test_array_built_geometry_equals_shapely_shape(gj):
     # Reference: shapely.geometry.shape, the general GeoJSON-to-geometry constructor.
     from shapely.geometry import shape
 
-    from courseplan.geometry import geometry_from_geojson
+    from courseplan.geo.geometry import geometry_from_geojson
 
     got, ref = geometry_from_geojson(gj), shape(gj)
     assert got.geom_type == ref.geom_type

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
-from courseplan.cli import main
+from courseplan.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
 PLAN = ROOT / "sample-geodata" / "plan.toml"

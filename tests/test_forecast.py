@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 
 from courseplan.errors import InputError, MissingInputError
-from courseplan.forecast import weather_from_settings, weather_from_table, window_steps
+from courseplan.stages.weather import weather_from_settings, weather_from_table, window_steps
 from courseplan.io.forecast import read_forecast_csv
 from courseplan.settings import PlanInfo, PlanSettings, Window
 

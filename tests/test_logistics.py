@@ -23,7 +23,7 @@ from hypothesis import strategies as st
 
 from courseplan import columns
 from courseplan.errors import InputError, SettingsError
-from courseplan.logistics import (
+from courseplan.stages.logistics import (
     CARRY_LIMIT_KG,
     crew_bag_kg,
     packages_for,

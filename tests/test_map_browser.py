@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from shapely.geometry import Point, box
 
-from courseplan import webmap as wm
+from courseplan.render import webmap as wm
 
 pytestmark = pytest.mark.browser
 

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from courseplan.cli import main
+from courseplan.cli.main import main
 
 ROOT = Path(__file__).resolve().parents[1]
 SAMPLE = ROOT / "sample-geodata"

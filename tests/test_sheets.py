@@ -20,8 +20,8 @@ from pypdf import PdfReader
 
 from courseplan.cautions import cautions_for
 from courseplan.errors import OutputError
-from courseplan.io.sheets import num, write_crews_pdf, write_order_pdf
-from courseplan.logistics import plan_logistics
+from courseplan.render.sheets import num, write_crews_pdf, write_order_pdf
+from courseplan.stages.logistics import plan_logistics
 from courseplan.settings import PlanSettings
 
 AGENT = types.SimpleNamespace(name="NH4NO3", label="Ammonium nitrate (test)", formula="NH4NO3",

@@ -13,7 +13,7 @@ from affine import Affine
 
 from courseplan.errors import CRSError, InputError, SettingsError
 from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2, window_times
-from courseplan.sunmap import sun_from_dem
+from courseplan.stages.sun import sun_from_dem
 
 UTM32 = "EPSG:32632"
 DAY = dict(date="2025-03-15", timezone="Europe/Zurich")

@@ -1,4 +1,4 @@
-"""Tests of the offline HTML map (courseplan.webmap, courseplan.io.webmap) without a browser."""
+"""Tests of the offline HTML map (courseplan.render.webmap, courseplan.io.webmap) without a browser."""
 
 from __future__ import annotations
 
@@ -13,7 +13,7 @@ from affine import Affine
 from pyproj import Transformer
 from shapely.geometry import Point, Polygon, box
 
-from courseplan import webmap as wm
+from courseplan.render import webmap as wm
 from courseplan.errors import GeometryError, InputError, OutputError
 from courseplan.io.webmap import write_map, write_map_html
 

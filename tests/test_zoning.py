@@ -16,7 +16,7 @@ from courseplan.columns import ZONING
 from courseplan.errors import InputError, OverlapError
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
-from courseplan.zoning import ZoningInputs, distance_along_course, zone_course
+from courseplan.stages.zoning import ZoningInputs, distance_along_course, zone_course
 
 CRS32632 = CRS.from_epsg(32632)
 
@@ -99,7 +99,7 @@ def test_geodesic_distance_matches_hand_value():
     # Straight 200 m strip from x=0: the far end is ~200 m from the start (within one coarse cell).
     course = box(0, 0, 200, 10)
     sun = strip_grid(fn=lambda X, Y: np.full_like(X, 0.5))
-    from courseplan.zoning import _rasterize
+    from courseplan.stages.zoning import _rasterize
     mask = _rasterize(course, sun, True)
     d, s, f, _ = distance_along_course(mask, sun, (0.0, 5.0))
     assert np.nanmax(d) == pytest.approx(200.0, abs=2.0)
@@ -191,7 +191,7 @@ def test_banded_rasterize_equals_one_pass(seed, amp, width, band, touched):
     # the banded burn must give exactly the same cells, for cell-centre and all-touched rules.
     from rasterio.features import rasterize
 
-    from courseplan.zoning import _rasterize
+    from courseplan.stages.zoning import _rasterize
 
     rng = np.random.default_rng(seed)
     t = np.linspace(0.0, 1.0, 1500)

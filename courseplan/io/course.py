@@ -10,7 +10,7 @@ import shapely
 from pyproj import CRS
 from shapely.geometry.base import BaseGeometry
 
-from ..errors import CRSError, GeometryError, InputError, MissingInputError
+from courseplan.errors import CRSError, GeometryError, InputError, MissingInputError
 
 
 @dataclass(frozen=True)
@@ -139,7 +139,7 @@ def _read_geojson(p: Path) -> Table | None:
     """
     import json
 
-    from ..geometry import geometry_from_geojson
+    from courseplan.geo.geometry import geometry_from_geojson
 
     try:
         doc = json.loads(p.read_bytes())

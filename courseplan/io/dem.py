@@ -17,8 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import CRSError, InputError, OutputError, OverlapError
-from .course import check_readable
+from courseplan.errors import CRSError, InputError, OutputError, OverlapError
+from courseplan.io.course import check_readable
 
 __all__ = ["Dem", "local_utm_crs", "read_dem", "write_sun_tiff", "BAND_NAMES", "BAND_UNITS"]
 

@@ -3,7 +3,7 @@
 Columns: ``time`` (ISO 8601, local time without offset or with an offset such as ``+01:00``),
 ``air_temp_c`` [°C], ``rh_pct`` [%], ``wind_m_s`` [m/s], ``cloud_fraction`` [0–1].  Every row is
 checked; all problems are reported at once with their line numbers.  The result goes to
-:func:`courseplan.forecast.weather_from_table`.
+:func:`courseplan.stages.weather.weather_from_table`.
 """
 
 from __future__ import annotations

@@ -7,14 +7,14 @@ from pathlib import Path
 import numpy as np
 from pyproj import CRS, Transformer
 
-from ..errors import CourseplanError, CRSError, InputError, ProblemList
-from ..pipeline import LoadedInputs
-from ..settings import PlanSettings
+from courseplan.errors import CourseplanError, CRSError, InputError, ProblemList
+from courseplan.pipeline import LoadedInputs
+from courseplan.settings import PlanSettings
 
 
 def utm_crs(lon: float, lat: float) -> CRS:
     """The UTM zone CRS (WGS84) containing a point (see :func:`courseplan.io.dem.local_utm_crs`)."""
-    from .dem import local_utm_crs
+    from courseplan.io.dem import local_utm_crs
 
     return CRS.from_user_input(local_utm_crs(lon, lat))
 
@@ -65,7 +65,7 @@ def _read_vector_with_crs(path: Path, what: str):
     """Read a vector file that must carry a CRS (centreline, markers)."""
     import geopandas as gpd
 
-    from .course import check_readable
+    from courseplan.io.course import check_readable
 
     p = check_readable(path, what)
     try:
@@ -89,8 +89,8 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
         When True, keep going after a problem and raise :class:`ProblemList` with all of them
         (``courseplan check``); otherwise raise the first.
     """
-    from .course import read_course
-    from .rasters import open_raster_info, read_window
+    from courseplan.io.course import read_course
+    from courseplan.io.rasters import open_raster_info, read_window
 
     problems: list[CourseplanError] = []
     notes: list[str] = []
@@ -119,11 +119,11 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
     dem_info = attempt(lambda: open_raster_info(ins.dem, "DEM")) if ins.dem else None
     catalogue = None
     if ins.agents:
-        from ..agents import catalogue as make_catalogue
-        from .agentfile import read_agents_file
+        from courseplan.agents import catalogue as make_catalogue
+        from courseplan.io.agentfile import read_agents_file
 
         catalogue = attempt(lambda: make_catalogue(read_agents_file(ins.agents), source=str(ins.agents)))
-    from ..agents import get_agent
+    from courseplan.agents import get_agent
 
     attempt(lambda: get_agent(settings.plan.agent, catalogue))
     if course is None:
@@ -151,14 +151,14 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
                 raise problems[-1]
     obs = None
     if ins.observations:
-        from .observations import read_observations
+        from courseplan.io.observations import read_observations
 
         obs = attempt(lambda: read_observations(ins.observations, crs, timezone=settings.plan.timezone,
                                                 xy_crs=ins.observations_crs))
         sources["observations"] = str(ins.observations)
     fc = None
     if ins.forecast:
-        from .forecast import read_forecast_csv
+        from courseplan.io.forecast import read_forecast_csv
 
         fc = attempt(lambda: read_forecast_csv(ins.forecast))
         sources["forecast"] = str(ins.forecast)

@@ -18,8 +18,8 @@ import numpy as np
 import pandas as pd
 from pyproj import CRS, Transformer
 
-from ..errors import CRSError, InputError, ObservationError
-from .course import check_readable
+from courseplan.errors import CRSError, InputError, ObservationError
+from courseplan.io.course import check_readable
 
 WETNESS_NAMES = ("dry", "moist", "wet", "very-wet", "soaked")
 ICE_DENSITY = 916.7  # kg/m³ at 0 °C, IAPWS-06 (Feistel & Wagner 2006)

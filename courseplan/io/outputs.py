@@ -18,9 +18,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .. import __version__
-from ..columns import ALL as ALL_COLUMNS
-from ..errors import OutputError
+from courseplan import __version__
+from courseplan.columns import ALL as ALL_COLUMNS
+from courseplan.errors import OutputError
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
 
@@ -115,8 +115,8 @@ def write_gpkg(path: Path, result) -> None:
 
 def write_map(path: Path, result) -> None:
     """Write the offline map page."""
-    from ..columns import ALL
-    from ..webmap import context_from_raster, render_map_html
+    from courseplan.columns import ALL
+    from courseplan.render.webmap import context_from_raster, render_map_html
 
     ctx = None
     if result.context is not None:
@@ -141,7 +141,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
     OutputError
         When *out_dir* exists and *overwrite* is False, or it cannot be written.
     """
-    from .sheets import write_crews_pdf, write_order_pdf
+    from courseplan.render.sheets import write_crews_pdf, write_order_pdf
 
     out_dir = Path(out_dir)
     if out_dir.exists() and not overwrite:

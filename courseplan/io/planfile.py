@@ -5,9 +5,9 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
-from ..errors import SettingsError
-from ..settings import PlanSettings, settings_from_mapping
-from .course import check_readable
+from courseplan.errors import SettingsError
+from courseplan.settings import PlanSettings, settings_from_mapping
+from courseplan.io.course import check_readable
 
 
 def read_plan(path: Path | str) -> PlanSettings:

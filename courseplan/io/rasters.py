@@ -13,9 +13,9 @@ from pathlib import Path
 import numpy as np
 from pyproj import CRS, Transformer
 
-from ..errors import CRSError, InputError, OverlapError
-from ..grid import Grid
-from .course import check_readable
+from courseplan.errors import CRSError, InputError, OverlapError
+from courseplan.grid import Grid
+from courseplan.io.course import check_readable
 
 
 def _fmt_bounds(b) -> str:

@@ -1,4 +1,4 @@
-"""Write the offline HTML map (the page itself is built by :mod:`courseplan.webmap`)."""
+"""Write the offline HTML map (the page itself is built by :mod:`courseplan.render.webmap`)."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import tempfile
 from pathlib import Path
 from typing import Any
 
-from ..errors import OutputError
+from courseplan.errors import OutputError
 
 
 def write_map_html(path: Path | str, page: str) -> Path:
@@ -46,12 +46,12 @@ def write_map_html(path: Path | str, page: str) -> Path:
 
 
 def write_map(path: Path | str, zones: Any, course: Any, **kwargs: Any) -> Path:
-    """Build the map with :func:`courseplan.webmap.render_map_html` and write it to *path*.
+    """Build the map with :func:`courseplan.render.webmap.render_map_html` and write it to *path*.
 
     Keyword arguments go to ``render_map_html`` (``title``, ``agent_label`` and ``cautions`` are
     required there).
     """
-    from ..webmap import render_map_html
+    from courseplan.render.webmap import render_map_html
 
     return write_map_html(path, render_map_html(zones, course, **kwargs))
 
@@ -64,8 +64,8 @@ def context_from_file(path: Path | str, kind: str = "terrain", *, band: int = 1,
     import rasterio
     from rasterio.enums import Resampling
 
-    from ..errors import MissingInputError
-    from ..webmap import context_from_raster
+    from courseplan.errors import MissingInputError
+    from courseplan.render.webmap import context_from_raster
 
     p = Path(path)
     if not p.is_file():

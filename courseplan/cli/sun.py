@@ -1,7 +1,7 @@
 """``courseplan sun``: sun and shade over a time window from a terrain model, as a two-band GeoTIFF.
 
-Registered on the main command group by :mod:`courseplan.cli`.  Library errors become one line on
-stderr and exit code 2 (the convention of :mod:`courseplan.cli`).
+Registered on the main command group by :mod:`courseplan.cli.main`.  Library errors become one line on
+stderr and exit code 2 (the convention of :mod:`courseplan.cli.main`).
 """
 
 from __future__ import annotations
@@ -60,7 +60,7 @@ def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, t
     from courseplan import __version__
     from courseplan.io.dem import read_dem, write_sun_tiff
     from courseplan.physics.solar import window_times
-    from courseplan.sunmap import sun_from_dem
+    from courseplan.stages.sun import sun_from_dem
 
     err = Console(stderr=True)
     times, _, _, _ = window_times(date, start, end, timezone, step_minutes)  # validate before reading

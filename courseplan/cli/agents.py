@@ -1,6 +1,6 @@
 """``courseplan agents``: list the agent catalogue (a rich table, or JSON with ``--json``).
 
-Registered on the main command group by :mod:`courseplan.cli`.
+Registered on the main command group by :mod:`courseplan.cli.main`.
 """
 
 from __future__ import annotations

@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .errors import InputError, SettingsError
+from courseplan.errors import InputError, SettingsError
 
 __all__ = ["Weather", "weather_from_settings", "weather_from_table", "window_steps"]
 

@@ -28,11 +28,11 @@ import numpy as np
 import shapely
 from shapely.geometry.base import BaseGeometry
 
-from .columns import ZONING
-from .errors import InputError, OverlapError
-from .geometry import geometry_from_geojson
-from .grid import Grid
-from .settings import Zoning
+from courseplan.columns import ZONING
+from courseplan.errors import InputError, OverlapError
+from courseplan.geo.geometry import geometry_from_geojson
+from courseplan.grid import Grid
+from courseplan.settings import Zoning
 
 ENCODING_RANGE = {"fraction": (0.0, 1.0), "percent": (0.0, 100.0), "wh_m2": (0.0, 20000.0)}
 """Accepted value range of each sun-raster encoding; values outside it are an input error."""

@@ -19,11 +19,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .agents import Agent
-from .errors import InputError
-from .forecast import Weather
-from .physics import brine, energy
-from .physics.dose import (
+from courseplan.agents import Agent
+from courseplan.errors import InputError
+from courseplan.stages.weather import Weather
+from courseplan.physics import brine, energy
+from courseplan.physics.dose import (
     TREATED,
     VERDICTS,
     cold_balance,
@@ -96,7 +96,7 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
     agent
         The agent spread.
     weather
-        Weather over the hold window (:mod:`courseplan.forecast`).
+        Weather over the hold window (:mod:`courseplan.stages.weather`).
 
     Returns
     -------

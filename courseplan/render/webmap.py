@@ -30,8 +30,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from . import columns as _columns
-from .errors import GeometryError, InputError
+from courseplan import columns as _columns
+from courseplan.errors import GeometryError, InputError
 
 if TYPE_CHECKING:  # pragma: no cover
     import geopandas

@@ -47,7 +47,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from .errors import AgentError
+from courseplan.errors import AgentError
 
 __all__ = ["Agent", "AGENT_FIELDS", "catalogue", "get_agent", "builtin_agents", "normalise_name"]
 

@@ -29,7 +29,7 @@ def guarded(fn):
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
         debug = kwargs.get("debug", False)
-        from .errors import CourseplanError, ObservationError, ProblemList
+        from courseplan.errors import CourseplanError, ObservationError, ProblemList
 
         try:
             return fn(*args, **kwargs)
@@ -91,8 +91,8 @@ def build_settings(plan_file: Path | None, *, course=None, course_feature=None, 
                    dem=None, observations=None, forecast=None, centreline=None, agent=None, date=None,
                    crews=None, overrides=(), **_):
     """Settings from the plan file (if any), then flags, then ``--set`` overrides."""
-    from .io.planfile import read_plan
-    from .settings import PlanSettings, parse_override, settings_from_mapping
+    from courseplan.io.planfile import read_plan
+    from courseplan.settings import PlanSettings, parse_override, settings_from_mapping
 
     s = read_plan(plan_file) if plan_file else PlanSettings()
     flags = {"inputs": {k: v for k, v in dict(course=course, course_feature=course_feature, sun=sun,
@@ -114,7 +114,7 @@ def _with_date(s):
     import datetime as dt
     from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-    from .errors import SettingsError
+    from courseplan.errors import SettingsError
 
     try:
         tz = ZoneInfo(s.plan.timezone)
@@ -150,7 +150,7 @@ def plan_command(plan_file, out_dir, overwrite, quiet, debug, **kw):
     """Make a treatment plan: zones, doses, order, map, GeoPackage and crew sheets."""
     from rich.console import Console
 
-    from .api import plan as run
+    from courseplan.api import plan as run
 
     s = build_settings(plan_file, **kw)
     s, note = _with_date(s)
@@ -205,7 +205,7 @@ def render_result(result, out_dir: Path) -> None:
 @guarded
 def check_command(plan_file, debug, **kw):
     """Check every input and setting of a plan; list all problems at once."""
-    from .io.loader import load_inputs
+    from courseplan.io.loader import load_inputs
 
     s = build_settings(plan_file, **kw)
     s, note = _with_date(s)
@@ -213,7 +213,7 @@ def check_command(plan_file, debug, **kw):
     for n in inputs.notes:
         click.echo(f"warning: {n}")
     # a dry run of the stages catches what only the data can tell (coverage, encodings, classes)
-    from .pipeline import run_plan
+    from courseplan.pipeline import run_plan
 
     result = run_plan(s, inputs)
     for n in result.notes:
@@ -223,11 +223,11 @@ def check_command(plan_file, debug, **kw):
 
 
 def _register() -> None:
-    from .cli_agents import agents_command
+    from courseplan.cli.agents import agents_command
 
     main.add_command(agents_command)
     try:
-        from .cli_sun import sun_command
+        from courseplan.cli.sun import sun_command
     except ImportError:  # pragma: no cover - during development only
         return
     main.add_command(sun_command)

@@ -19,9 +19,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .errors import SettingsError
-from .physics.dose import WETNESS_CLASSES
-from .settings import PlanSettings
+from courseplan.errors import SettingsError
+from courseplan.physics.dose import WETNESS_CLASSES
+from courseplan.settings import PlanSettings
 
 FIELDS = ("lwc_pct", "density_kg_m3", "snow_temp_c")
 

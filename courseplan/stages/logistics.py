@@ -40,8 +40,8 @@ from typing import Any
 
 import numpy as np
 
-from .errors import InputError, SettingsError
-from .settings import PlanSettings, _minutes
+from courseplan.errors import InputError, SettingsError
+from courseplan.settings import PlanSettings, _minutes
 
 CARRY_LIMIT_KG = 25.0
 """Heaviest bag one person carries onto the hill [kg]; common practice, no source (25 kg is the usual

@@ -1,7 +1,7 @@
 """Printable sheets: the order sheet for the logistics lead and one crew sheet per crew (PDF).
 
 Built with reportlab (BSD licence, pure pip).  Every figure printed comes from
-:meth:`courseplan.logistics.LogisticsResult.summary`, formatted by :func:`num`, so the sheets and
+:meth:`courseplan.stages.logistics.LogisticsResult.summary`, formatted by :func:`num`, so the sheets and
 ``summary.json`` agree.  The maps are vector graphics that read in black and white: the crew's zones
 are hatched and outlined in black, other treated zones are light grey, the course outline is a black
 line, and every zone carries its number.  Files are written to a temporary name in the target folder
@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Any
 from xml.sax.saxutils import escape
 
-from ..errors import OutputError
+from courseplan.errors import OutputError
 
 PAGE_MARGIN_PT = 36.0  # 12.7 mm, inside the printable area of common office printers
 
@@ -40,7 +40,7 @@ def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str
     path
         Target file (``order.pdf``); replaced atomically.
     result
-        :class:`courseplan.logistics.LogisticsResult`.
+        :class:`courseplan.stages.logistics.LogisticsResult`.
     plan_name, plan_date
         Printed in the header and footer of every page.
     agent_label
@@ -124,7 +124,7 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
     path
         Target file (``crews.pdf``); replaced atomically.
     result
-        :class:`courseplan.logistics.LogisticsResult`.
+        :class:`courseplan.stages.logistics.LogisticsResult`.
     course_geom
         Course outline (shapely polygon in the zones' CRS); None draws the zones' outline instead.
     plan_name, plan_date, agent_label, cautions
