@@ -26,6 +26,7 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     PlanResult
         The result that was written.
     """
+    from courseplan.io.files import refuse_existing
     from courseplan.io.loader import load_inputs
     from courseplan.io.outputs import write_outputs
     from courseplan.io.planfile import read_plan
@@ -34,12 +35,24 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     if not isinstance(settings, PlanSettings):
         settings = read_plan(settings)
     out = Path(out_dir)
-    if out.exists() and not overwrite:
-        from courseplan.errors import OutputError
-
-        raise OutputError("the output folder already exists", where=str(out),
-                          fix="choose a new --out folder or add --overwrite")
+    refuse_existing(out, overwrite, kind="folder")
     inputs = load_inputs(settings)
     result = run_plan(settings, inputs, progress=progress)
     write_outputs(result, out, overwrite=overwrite)
     return result
+
+
+def check(settings: PlanSettings):
+    """Read every input and dry-run the stages, writing nothing.
+
+    Returns
+    -------
+    tuple
+        (notes from reading the inputs, the :class:`~courseplan.pipeline.PlanResult`).
+    """
+    from courseplan.io.loader import load_inputs
+    from courseplan.pipeline import run_plan
+
+    inputs = load_inputs(settings, collect=True)
+    # a dry run of the stages catches what only the data can tell (coverage, encodings, classes)
+    return tuple(inputs.notes), run_plan(settings, inputs)

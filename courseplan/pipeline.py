@@ -117,7 +117,7 @@ def _lonlat(crs: CRS, x: float, y: float) -> tuple[float, float]:
 
 def terrain_on(grid: Grid, dem: Grid) -> tuple[Grid, Grid, Grid]:
     """Slope, aspect (Horn 1981, on the DEM's own cells) and elevation resampled onto *grid*."""
-    from courseplan.io.rasters import resample_to  # pure numpy/rasterio warp; no file access
+    from courseplan.geo.raster import resample_to
     from courseplan.physics.terrain import slope_aspect_horn
 
     dx, dy = dem.cell_size
@@ -151,11 +151,11 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     import geopandas as gpd
 
     from courseplan.agents import get_agent
+    from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
     from courseplan.stages.conditions import assign_snow
     from courseplan.stages.dosing import apply_dosing
-    from courseplan.stages.weather import weather_from_settings, weather_from_table
     from courseplan.stages.logistics import plan_logistics
-    from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
+    from courseplan.stages.weather import weather_from_settings, weather_from_table
     from courseplan.stages.zoning import ZoningInputs, zone_course
 
     def step(name: str) -> None:

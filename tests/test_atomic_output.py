@@ -113,7 +113,7 @@ def _interrupt(*_a, **_k):
 
 
 @pytest.mark.parametrize("target", ["courseplan.io.outputs.write_map", "courseplan.io.outputs.write_gpkg",
-                                    "courseplan.render.sheets.write_crews_pdf"])
+                                    "courseplan.io.outputs.write_crews_pdf"])
 def test_interrupted_run_leaves_nothing(tiny, tmp_path, monkeypatch, target):
     monkeypatch.setattr(target, _interrupt)
     out = tmp_path / "out"
@@ -130,7 +130,7 @@ def test_interrupted_overwrite_keeps_the_old_folder(tiny, tmp_path, monkeypatch)
     out.mkdir()
     (out / "summary.json").write_text('{"old": true}')
     before = snapshot(out)
-    monkeypatch.setattr("courseplan.render.sheets.write_crews_pdf", _interrupt)
+    monkeypatch.setattr("courseplan.io.outputs.write_crews_pdf", _interrupt)
     res = run([*tiny, "--out", out, "--overwrite"])
     assert res.exit_code == 130
     assert snapshot(out) == before

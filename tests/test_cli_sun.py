@@ -8,7 +8,7 @@ from click.testing import CliRunner
 
 from courseplan.cli.sun import sun_command
 from courseplan.errors import CRSError, MissingInputError, OverlapError
-from courseplan.io.dem import read_dem
+from courseplan.io.rasters import read_dem
 
 ARGS = ["--date", "2025-03-15", "--start", "09:00", "--end", "15:00", "--step-minutes", "30",
         "--timezone", "Europe/Zurich"]
@@ -114,7 +114,7 @@ def test_missing_dem_and_missing_crs(tmp_path):
 def test_read_dem_window_with_margin_and_overlap_error(dem):
     # DEM covers x 499 900–500 100, y 5 149 900–5 150 100 in 10 m cells
     d = read_dem(dem, bounds=(499_990.0, 5_149_990.0, 500_010.0, 5_150_010.0), margin_m=30.0)
-    assert d.elevation.shape == (8, 8)                 # 20 m + 2·30 m = 80 m → 8 cells
+    assert d.values.shape == (8, 8)                 # 20 m + 2·30 m = 80 m → 8 cells
     assert d.bounds == pytest.approx((499_960.0, 5_149_960.0, 500_040.0, 5_150_040.0), abs=1e-6)
     with pytest.raises(OverlapError) as err:
         read_dem(dem, bounds=(600_000.0, 5_000_000.0, 600_100.0, 5_000_100.0))

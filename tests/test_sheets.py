@@ -20,7 +20,8 @@ from pypdf import PdfReader
 
 from courseplan.cautions import cautions_for
 from courseplan.errors import OutputError
-from courseplan.render.sheets import num, write_crews_pdf, write_order_pdf
+from courseplan.io.outputs import write_crews_pdf, write_order_pdf
+from courseplan.render.sheets import num
 from courseplan.stages.logistics import plan_logistics
 from courseplan.settings import PlanSettings
 

@@ -15,7 +15,7 @@ from shapely.geometry import Point, Polygon, box
 
 from courseplan.render import webmap as wm
 from courseplan.errors import GeometryError, InputError, OutputError
-from courseplan.io.webmap import write_map, write_map_html
+from courseplan.io.files import write_text_atomic
 
 UTM = "EPSG:32632"
 X0, Y0 = 519_000.0, 5_155_000.0  # near 46.55° N, 9.25° E
@@ -336,8 +336,10 @@ def test_page_with_context_embeds_png():
 # --------------------------------------------------------------------------- writing
 
 def test_write_map_html_atomic(tmp_path):
-    out = write_map(tmp_path / "map.html", _zones(), _course(), title="T", agent_label="A", cautions=["C"])
+    # the map writer of the plan is io.files.write_text_atomic over render_map_html
+    page = wm.render_map_html(_zones(), _course(), title="T", agent_label="A", cautions=["C"])
+    out = write_text_atomic(tmp_path / "map.html", page, what="map")
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
     assert [p.name for p in tmp_path.iterdir()] == ["map.html"]   # no temporary file left
     with pytest.raises(OutputError):
-        write_map_html(tmp_path / "missing" / "map.html", "<html></html>")
+        write_text_atomic(tmp_path / "missing" / "map.html", "<html></html>", what="map")

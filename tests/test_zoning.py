@@ -16,7 +16,8 @@ from courseplan.columns import ZONING
 from courseplan.errors import InputError, OverlapError
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
-from courseplan.stages.zoning import ZoningInputs, distance_along_course, zone_course
+from courseplan.stages.zoning import ZoningInputs, zone_course
+from courseplan.geo.chainage import distance_along_course
 
 CRS32632 = CRS.from_epsg(32632)
 
@@ -99,8 +100,8 @@ def test_geodesic_distance_matches_hand_value():
     # Straight 200 m strip from x=0: the far end is ~200 m from the start (within one coarse cell).
     course = box(0, 0, 200, 10)
     sun = strip_grid(fn=lambda X, Y: np.full_like(X, 0.5))
-    from courseplan.stages.zoning import _rasterize
-    mask = _rasterize(course, sun, True)
+    from courseplan.geo.raster import burn
+    mask = burn(course, sun, True)
     d, s, f, _ = distance_along_course(mask, sun, (0.0, 5.0))
     assert np.nanmax(d) == pytest.approx(200.0, abs=2.0)
     assert f[0] == pytest.approx(200.0, abs=2.0)
@@ -191,7 +192,7 @@ def test_banded_rasterize_equals_one_pass(seed, amp, width, band, touched):
     # the banded burn must give exactly the same cells, for cell-centre and all-touched rules.
     from rasterio.features import rasterize
 
-    from courseplan.stages.zoning import _rasterize
+    from courseplan.geo.raster import burn
 
     rng = np.random.default_rng(seed)
     t = np.linspace(0.0, 1.0, 1500)
@@ -204,6 +205,6 @@ def test_banded_rasterize_equals_one_pass(seed, amp, width, band, touched):
     grid = Grid(values=np.zeros(shape, np.float32), transform=tr, crs=CRS32632, source="synthetic")
     one = rasterize([(course, 1)], out_shape=shape, transform=tr, fill=0, all_touched=touched,
                     dtype="uint8").astype(bool)
-    banded = _rasterize(course, grid, touched, band_rows=band, min_vertices=0)
+    banded = burn(course, grid, touched, band_rows=band, min_vertices=0)
     assert one.sum() > 0
     assert np.array_equal(banded, one), int((banded != one).sum())

@@ -11,6 +11,8 @@ from pathlib import Path
 
 import click
 
+from courseplan.cli.common import debug_option, guarded
+
 
 def _rows(cat):
     yield from cat.values()
@@ -22,15 +24,13 @@ def _rows(cat):
 @click.option("--agents-file", type=click.Path(dir_okay=False, path_type=Path), default=None,
               help="TOML file adding or overriding agents (as [inputs] agents in a plan).")
 @click.option("--sources", is_flag=True, help="Also print the source of every value.")
-def agents_command(as_json: bool, agents_file: Path | None, sources: bool) -> None:
+@debug_option
+@guarded
+def agents_command(as_json: bool, agents_file: Path | None, sources: bool, debug: bool = False) -> None:
     """List the hardening agents: properties, eutectic, heat of solution, packaging and sources."""
-    from courseplan.errors import CourseplanError
     from courseplan.io.agentfile import load_catalogue
 
-    try:
-        cat = load_catalogue(agents_file)
-    except CourseplanError as exc:
-        raise click.ClickException(exc.line()) from None
+    cat = load_catalogue(agents_file)
     if as_json:
         out = {name: ag.as_dict() for name, ag in cat.items()}
         for name, ag in cat.items():

@@ -1,18 +1,17 @@
 """``courseplan sun``: sun and shade over a time window from a terrain model, as a two-band GeoTIFF.
 
-Registered on the main command group by :mod:`courseplan.cli.main`.  Library errors become one line on
-stderr and exit code 2 (the convention of :mod:`courseplan.cli.main`).
+Registered on the main command group by :mod:`courseplan.cli.main`; errors go through
+:func:`courseplan.cli.common.guarded` like every command's.
 """
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 import click
 
-EXIT_INPUT = 2
-EXIT_INTERRUPTED = 130
+from courseplan.cli.common import debug_option, guarded
+
 #: Work (cells × time steps) above which a progress bar is shown on a terminal.
 _PROGRESS_WORK = 20_000_000
 
@@ -29,27 +28,20 @@ _PROGRESS_WORK = 20_000_000
 @click.option("--out", "out", required=True, type=click.Path(path_type=Path, dir_okay=False),
               help="Output GeoTIFF: band 1 sun fraction (0–1), band 2 irradiation [Wh/m²].")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
+@debug_option
+@guarded
 def sun_command(dem_path: Path, date: str, start: str, end: str, step_minutes: float, timezone: str,
-                out: Path, overwrite: bool) -> None:
+                out: Path, overwrite: bool, debug: bool = False) -> None:
     """Sun and shade from a terrain model over a time window.
 
     Writes a GeoTIFF on the DEM's grid (a geographic DEM is first reprojected to its UTM zone):
     band 1 is the share of the window in direct sun, counting cast shadows of all terrain in the
     DEM; band 2 is the clear-sky irradiation on each cell's slope, direct + diffuse, in Wh/m².
     """
-    from courseplan.errors import CourseplanError, OutputError
+    from courseplan.io.files import refuse_existing
 
-    try:
-        if out.exists() and not overwrite:
-            raise OutputError("the output file exists", where=str(out),
-                              fix="choose another name or add --overwrite")
-        _run(dem_path, date, start, end, step_minutes, timezone, out, overwrite)
-    except CourseplanError as exc:
-        click.echo(f"error: {exc.line()}", err=True)
-        sys.exit(EXIT_INPUT)
-    except KeyboardInterrupt:
-        click.echo("interrupted: nothing was written", err=True)
-        sys.exit(EXIT_INTERRUPTED)
+    refuse_existing(out, overwrite, kind="file")
+    _run(dem_path, date, start, end, step_minutes, timezone, out, overwrite)
 
 
 def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, timezone: str, out: Path,
@@ -58,14 +50,14 @@ def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, t
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
     from courseplan import __version__
-    from courseplan.io.dem import read_dem, write_sun_tiff
+    from courseplan.io.rasters import read_dem, write_sun_tiff
     from courseplan.physics.solar import window_times
     from courseplan.stages.sun import sun_from_dem
 
     err = Console(stderr=True)
     times, _, _, _ = window_times(date, start, end, timezone, step_minutes)  # validate before reading
     dem = read_dem(dem_path)
-    n_cells = dem.elevation.size
+    n_cells = dem.values.size
     show = err.is_terminal and n_cells * len(times) >= _PROGRESS_WORK
     with Progress(TextColumn("sun and shade"), BarColumn(), MofNCompleteColumn(), TextColumn("steps"),
                   TimeRemainingColumn(), console=err, disable=not show, transient=True) as bar:
@@ -74,14 +66,14 @@ def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, t
         def tick(done: int, total: int) -> None:
             bar.update(task, completed=done, total=total)
 
-        grids = sun_from_dem(dem.elevation, dem.transform, dem.crs, date=date, start=start, end=end,
+        grids = sun_from_dem(dem.values, dem.transform, dem.crs, date=date, start=start, end=end,
                              timezone=timezone, step_minutes=step_minutes, progress=tick)
     cs = grids.window
     tags = {"date": date, "window_start": cs.start.isoformat(), "window_end": cs.end.isoformat(),
             "timezone": timezone, "step_minutes": f"{cs.step_hours * 60:.6g}", "time_steps": cs.n_steps,
             "site_lat_lon_alt": f"{cs.latitude:.6f} {cs.longitude:.6f} {cs.altitude_m:.1f}",
             "grid_north_deg": f"{grids.grid_north_deg:.4f}", "method": grids.method,
-            "source_dem": str(dem.path), "software": f"courseplan {__version__}"}
+            "source_dem": str(dem_path), "software": f"courseplan {__version__}"}
     path = write_sun_tiff(out, grids.sun_fraction, grids.irradiation_wh_m2, dem.transform, dem.crs,
                           tags=tags, overwrite=overwrite)
     import numpy as np
@@ -89,7 +81,7 @@ def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, t
     ok = np.isfinite(grids.sun_fraction)
     mean_f = float(np.mean(grids.sun_fraction[ok])) if ok.any() else float("nan")
     mean_e = float(np.mean(grids.irradiation_wh_m2[ok])) if ok.any() else float("nan")
-    n_rows, n_cols = dem.elevation.shape
+    n_rows, n_cols = dem.values.shape
     click.echo(f"wrote {path}: {n_rows} × {n_cols} cells of {abs(dem.transform.a):.3g} m in {dem.crs.name}, "
                f"{cs.n_steps} steps of {cs.step_hours * 60:.3g} min; mean sun fraction {mean_f:.2f}, "
                f"mean irradiation {mean_e:,.0f} Wh/m²")

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import shapely
-from shapely.geometry import shape
 from shapely.errors import GEOSException
+from shapely.geometry import shape
 from shapely.geometry.base import BaseGeometry
 
 

@@ -10,7 +10,8 @@ import shapely
 from pyproj import CRS
 from shapely.geometry.base import BaseGeometry
 
-from courseplan.errors import CRSError, GeometryError, InputError, MissingInputError
+from courseplan.errors import CRSError, GeometryError, InputError
+from courseplan.io.files import check_readable
 
 
 @dataclass(frozen=True)
@@ -22,24 +23,6 @@ class Course:
     name: str
     source: str
     warnings: tuple[str, ...] = field(default=())
-
-
-def check_readable(path: Path, what: str) -> Path:
-    """Raise :class:`MissingInputError` unless *path* is an existing, readable file."""
-    p = Path(path)
-    if not p.exists():
-        raise MissingInputError(f"{what} file not found", where=str(p),
-                                fix="check the path (relative paths in a plan file start at the plan file's folder)")
-    if p.is_dir() and p.suffix.lower() not in (".gdb",):
-        raise MissingInputError(f"{what} path is a folder, not a file", where=str(p), fix="name the file itself")
-    try:
-        if p.is_file():
-            with open(p, "rb") as fh:
-                fh.read(1)
-    except OSError as exc:
-        raise MissingInputError(f"{what} file cannot be read ({exc.strerror})", where=str(p),
-                                fix="check the file's permissions") from None
-    return p
 
 
 def check_coordinates_match_crs(bounds: tuple[float, float, float, float], crs: CRS, where: str) -> None:

@@ -8,23 +8,9 @@ import numpy as np
 from pyproj import CRS, Transformer
 
 from courseplan.errors import CourseplanError, CRSError, InputError, ProblemList
+from courseplan.geo.crs import is_metric, utm_crs
 from courseplan.pipeline import LoadedInputs
 from courseplan.settings import PlanSettings
-
-
-def utm_crs(lon: float, lat: float) -> CRS:
-    """The UTM zone CRS (WGS84) containing a point (see :func:`courseplan.io.dem.local_utm_crs`)."""
-    from courseplan.io.dem import local_utm_crs
-
-    return CRS.from_user_input(local_utm_crs(lon, lat))
-
-
-def is_metric(crs: CRS | None) -> bool:
-    """Whether a CRS is projected with metre axes."""
-    if crs is None or not crs.is_projected:
-        return False
-    units = {ax.unit_name.lower() for ax in crs.axis_info}
-    return units <= {"metre", "meter", "m"}
 
 
 def choose_working_crs(settings: PlanSettings, course_crs: CRS, course_geom, raster_crs: CRS | None) -> CRS:
@@ -65,7 +51,7 @@ def _read_vector_with_crs(path: Path, what: str):
     """Read a vector file that must carry a CRS (centreline, markers)."""
     import geopandas as gpd
 
-    from courseplan.io.course import check_readable
+    from courseplan.io.files import check_readable
 
     p = check_readable(path, what)
     try:

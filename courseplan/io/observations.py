@@ -19,7 +19,7 @@ import pandas as pd
 from pyproj import CRS, Transformer
 
 from courseplan.errors import CRSError, InputError, ObservationError
-from courseplan.io.course import check_readable
+from courseplan.io.files import check_readable
 
 WETNESS_NAMES = ("dry", "moist", "wet", "very-wet", "soaked")
 ICE_DENSITY = 916.7  # kg/m³ at 0 °C, IAPWS-06 (Feistel & Wagner 2006)

@@ -21,6 +21,7 @@ import pandas as pd
 from courseplan import __version__
 from courseplan.columns import ALL as ALL_COLUMNS
 from courseplan.errors import OutputError
+from courseplan.io.files import refuse_existing, write_bytes_atomic, write_text_atomic
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
 
@@ -130,7 +131,21 @@ def write_map(path: Path, result) -> None:
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
                            units={c.name: c.unit for c in ALL})
-    path.write_text(html, encoding="utf-8")
+    write_text_atomic(path, html, what="map")
+
+
+def write_order_pdf(path: Path, result, **kw) -> Path:
+    """Write the order sheet (:func:`courseplan.render.sheets.order_pdf`) to *path*, atomically."""
+    from courseplan.render.sheets import order_pdf
+
+    return write_bytes_atomic(Path(path), order_pdf(result, **kw), what="order sheet")
+
+
+def write_crews_pdf(path: Path, result, course_geom, **kw) -> Path:
+    """Write the crew sheets (:func:`courseplan.render.sheets.crews_pdf`) to *path*, atomically."""
+    from courseplan.render.sheets import crews_pdf
+
+    return write_bytes_atomic(Path(path), crews_pdf(result, course_geom, **kw), what="crew sheets")
 
 
 def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Path]:
@@ -141,14 +156,8 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
     OutputError
         When *out_dir* exists and *overwrite* is False, or it cannot be written.
     """
-    from courseplan.render.sheets import write_crews_pdf, write_order_pdf
-
     out_dir = Path(out_dir)
-    if out_dir.exists() and not overwrite:
-        raise OutputError("the output folder already exists", where=str(out_dir),
-                          fix="choose a new --out folder or add --overwrite")
-    if out_dir.exists() and not out_dir.is_dir():
-        raise OutputError("the output path is a file", where=str(out_dir), fix="choose a folder name")
+    refuse_existing(out_dir, overwrite, kind="folder")
     parent = out_dir.resolve().parent
     try:
         parent.mkdir(parents=True, exist_ok=True)
@@ -161,7 +170,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         write_gpkg(tmp / "zones.gpkg", result)
         write_map(tmp / "map.html", result)
         summary = summary_dict(result)
-        (tmp / "summary.json").write_text(json.dumps(summary, indent=2, ensure_ascii=False), encoding="utf-8")
+        write_text_atomic(tmp / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
         kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
                   cautions=list(result.cautions))
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)

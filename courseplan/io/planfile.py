@@ -6,8 +6,8 @@ import tomllib
 from pathlib import Path
 
 from courseplan.errors import SettingsError
+from courseplan.io.files import check_readable
 from courseplan.settings import PlanSettings, settings_from_mapping
-from courseplan.io.course import check_readable
 
 
 def read_plan(path: Path | str) -> PlanSettings:

@@ -1,8 +1,10 @@
-"""Read raster windows around the course and bring them into the working CRS.
+"""The one raster reader (sun/shade rasters and DEMs) and the sun GeoTIFF writer.
 
 Course first: only the window around the course (plus a margin) is read, never the whole raster.
 A raster in another CRS is read in its own CRS over the transformed bounds and then warped
-(bilinear) onto a grid of about the same cell size in the working CRS.
+(bilinear) onto a grid of about the same cell size in the working CRS.  Every raster comes back
+as a :class:`courseplan.grid.Grid` (float32, NaN = no data); :func:`read_dem` is :func:`read_window`
+over a DEM's own extent (or some bounds) in a metric CRS.
 """
 
 from __future__ import annotations
@@ -13,9 +15,10 @@ from pathlib import Path
 import numpy as np
 from pyproj import CRS, Transformer
 
-from courseplan.errors import CRSError, InputError, OverlapError
+from courseplan.errors import CRSError, InputError, OutputError, OverlapError
+from courseplan.geo.crs import is_metric, require_metric, utm_crs
 from courseplan.grid import Grid
-from courseplan.io.course import check_readable
+from courseplan.io.files import check_readable, refuse_existing, write_atomic
 
 
 def _fmt_bounds(b) -> str:
@@ -120,15 +123,118 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
     return Grid(values=dst, transform=dst_t, crs=work_crs, source=f"{path} band {band} (warped)")
 
 
-def resample_to(grid: Grid, target: Grid, *, nearest: bool = False) -> Grid:
-    """Resample *grid* onto *target*'s cells (bilinear, or nearest)."""
-    from rasterio.enums import Resampling
-    from rasterio.warp import reproject
 
-    if grid.transform == target.transform and grid.shape == target.shape:
-        return grid
-    dst = np.full(target.shape, np.nan, dtype=np.float32)
-    reproject(grid.values, dst, src_transform=grid.transform, src_crs=grid.crs, dst_transform=target.transform,
-              dst_crs=target.crs, resampling=Resampling.nearest if nearest else Resampling.bilinear,
-              src_nodata=np.nan, dst_nodata=np.nan)
-    return Grid(values=dst, transform=target.transform, crs=target.crs, source=grid.source)
+
+#: Band descriptions and units of the sun GeoTIFF (band 1, band 2).
+BAND_NAMES = ("sun_fraction", "irradiation_wh_m2")
+BAND_UNITS = ("1", "Wh/m2")
+
+
+def read_dem(path, *, bounds: tuple[float, float, float, float] | None = None, bounds_crs=None,
+             margin_m: float = 0.0, target_crs=None, band: int = 1) -> Grid:
+    """Read a DEM, optionally only around some bounds, as a :class:`Grid` in a metric CRS.
+
+    Parameters
+    ----------
+    path
+        DEM raster (GeoTIFF or anything GDAL reads) with a CRS; elevations in metres.
+    bounds
+        Optional (minx, miny, maxx, maxy) to read around, in ``bounds_crs`` (default: the DEM's CRS).
+    bounds_crs
+        CRS of ``bounds``.
+    margin_m
+        Margin [m] added on every side of ``bounds``.
+    target_crs
+        Metric CRS to return the DEM in; default: the DEM's own CRS when it is metric, else the local
+        UTM zone of the DEM's (or the bounds') centre.
+    band
+        Band holding elevation.
+
+    Raises
+    ------
+    MissingInputError, CRSError, OverlapError, InputError
+        As :func:`read_window`; also when ``target_crs`` is not metric.
+    """
+    p = Path(path)
+    info = open_raster_info(p, "DEM")
+    src: CRS = info["crs"]
+    bcrs = src if bounds_crs is None else CRS.from_user_input(bounds_crs)
+    b = tuple(info["bounds"]) if bounds is None else tuple(bounds)
+    if bounds is None:
+        bcrs = src
+    if target_crs is not None:
+        work = require_metric(target_crs, "working CRS", "give a projected CRS such as the local UTM zone")
+    elif is_metric(src):
+        work = src
+    else:
+        lon, lat = Transformer.from_crs(bcrs, "EPSG:4326", always_xy=True).transform(
+            0.5 * (b[0] + b[2]), 0.5 * (b[1] + b[3]))
+        work = utm_crs(lon, lat)
+    wb = b if bcrs == work else Transformer.from_crs(bcrs, work, always_xy=True).transform_bounds(
+        *b, densify_pts=21)
+    return read_window(p, wb, work, what="DEM", band=band, margin_m=margin_m)
+
+
+def write_sun_tiff(path: str | Path, sun_fraction: np.ndarray, irradiation_wh_m2: np.ndarray,
+                   transform, crs, *, tags: dict[str, object] | None = None, overwrite: bool = False) -> Path:
+    """Write the two-band sun GeoTIFF, through a temporary file moved into place.
+
+    Parameters
+    ----------
+    path
+        Output file.
+    sun_fraction
+        Band 1: share of the window in direct sun [-] (NaN = nodata).
+    irradiation_wh_m2
+        Band 2: clear-sky irradiation on the surface over the window [Wh/m²].
+    transform, crs
+        Grid of both bands.
+    tags
+        Extra dataset tags (date, window, method, ...); written as text.
+    overwrite
+        Replace an existing file.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+
+    Raises
+    ------
+    OutputError
+        The file exists and ``overwrite`` is False, or it cannot be written.
+    """
+    import rasterio
+    from rasterio.crs import CRS as RioCRS
+
+    out = Path(path)
+    refuse_existing(out, overwrite, kind="file")
+    a = np.asarray(sun_fraction, dtype=np.float32)
+    b = np.asarray(irradiation_wh_m2, dtype=np.float32)
+    if a.shape != b.shape or a.ndim != 2:
+        raise ValueError(f"band shapes differ: {a.shape} vs {b.shape}")
+    profile = {"driver": "GTiff", "width": a.shape[1], "height": a.shape[0], "count": 2, "dtype": "float32",
+               "crs": RioCRS.from_user_input(crs.to_wkt() if hasattr(crs, "to_wkt") else crs),
+               "transform": transform, "nodata": float("nan"), "compress": "deflate", "predictor": 3,
+               "tiled": a.shape[0] >= 256 and a.shape[1] >= 256, "BIGTIFF": "IF_SAFER"}
+    if profile["tiled"]:
+        profile.update(blockxsize=256, blockysize=256)
+    def write(tmp: Path) -> None:
+        with rasterio.open(tmp, "w", **profile) as ds:
+            ds.write(a, 1)
+            ds.write(b, 2)
+            for i, (name, unit) in enumerate(zip(BAND_NAMES, BAND_UNITS, strict=True), start=1):
+                ds.set_band_description(i, name)
+                ds.set_band_unit(i, unit)
+            ds.update_tags(1, meaning="share of the window in direct sun (0-1)")
+            ds.update_tags(2, meaning="clear-sky irradiation on the snow surface over the window, "
+                                      "direct + diffuse")
+            if tags:
+                ds.update_tags(**{str(k): str(v) for k, v in tags.items()})
+
+    try:
+        write_atomic(out, write, what="sun raster")
+    except rasterio.errors.RasterioIOError as exc:
+        raise OutputError(f"cannot write the sun raster ({exc})", where=str(out),
+                          fix="check the folder's permissions and free space") from None
+    return out

@@ -4,19 +4,14 @@ Built with reportlab (BSD licence, pure pip).  Every figure printed comes from
 :meth:`courseplan.stages.logistics.LogisticsResult.summary`, formatted by :func:`num`, so the sheets and
 ``summary.json`` agree.  The maps are vector graphics that read in black and white: the crew's zones
 are hatched and outlined in black, other treated zones are light grey, the course outline is a black
-line, and every zone carries its number.  Files are written to a temporary name in the target folder
-and moved into place, so an interrupted run leaves no half-written sheet.
+line, and every zone carries its number.  The builders return PDF bytes; :mod:`courseplan.io.outputs`
+writes them.
 """
 
 from __future__ import annotations
 
-import os
-import tempfile
-from pathlib import Path
 from typing import Any
 from xml.sax.saxutils import escape
-
-from courseplan.errors import OutputError
 
 PAGE_MARGIN_PT = 36.0  # 12.7 mm, inside the printable area of common office printers
 
@@ -31,14 +26,12 @@ def num(value: float | int | None, nd: int = 1) -> str:
 # ---------------------------------------------------------------- public API
 
 
-def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str, plan_date: str | None,
-                    agent_label: str, cautions: list[str] | tuple[str, ...]) -> Path:
-    """Write the order sheet for the logistics lead.
+def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
+              agent_label: str, cautions: list[str] | tuple[str, ...]) -> bytes:
+    """Build the order sheet for the logistics lead (PDF bytes).
 
     Parameters
     ----------
-    path
-        Target file (``order.pdf``); replaced atomically.
     result
         :class:`courseplan.stages.logistics.LogisticsResult`.
     plan_name, plan_date
@@ -50,8 +43,8 @@ def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str
 
     Returns
     -------
-    pathlib.Path
-        The file written.
+    bytes
+        The PDF.
     """
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, Spacer
@@ -107,13 +100,12 @@ def write_order_pdf(path: str | os.PathLike[str], result: Any, *, plan_name: str
     story.append(_grid_table(head, body, st, total=None,
                              widths=[18, 38, 22, 22, 12, 20, 14, 16]))
     story += _notes_and_cautions(cr["notes"], cautions, st)
-    _build(path, story, plan_name, plan_date, "Order sheet")
-    return Path(path)
+    return _build(story, plan_name, plan_date, "Order sheet")
 
 
-def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any, *, plan_name: str,
-                    plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...]) -> Path:
-    """Write the crew sheets: one page per crew.
+def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
+              plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...]) -> bytes:
+    """Build the crew sheets, one page per crew (PDF bytes).
 
     Each page: a map of the crew's zones on the course outline (with zone numbers and the depot), an
     overview of the whole course, the zones table in walking order (zone, section, surface area, dose
@@ -121,19 +113,17 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
 
     Parameters
     ----------
-    path
-        Target file (``crews.pdf``); replaced atomically.
     result
         :class:`courseplan.stages.logistics.LogisticsResult`.
     course_geom
         Course outline (shapely polygon in the zones' CRS); None draws the zones' outline instead.
     plan_name, plan_date, agent_label, cautions
-        As for :func:`write_order_pdf`.
+        As for :func:`order_pdf`.
 
     Returns
     -------
-    pathlib.Path
-        The file written.
+    bytes
+        The PDF.
     """
     import shapely
     from reportlab.lib.units import mm
@@ -205,8 +195,7 @@ def write_crews_pdf(path: str | os.PathLike[str], result: Any, course_geom: Any,
         story.append(KeepInFrame(frame_w, frame_h, page, mode="shrink"))
         if n < len(cr["crews"]) - 1:
             story.append(PageBreak())
-    _build(path, story, plan_name, plan_date, "Crew sheets")
-    return Path(path)
+    return _build(story, plan_name, plan_date, "Crew sheets")
 
 
 # ---------------------------------------------------------------- pieces
@@ -301,16 +290,12 @@ def _notes_and_cautions(notes: list[str], cautions: list[str] | tuple[str, ...],
     return out
 
 
-def _build(path: str | os.PathLike[str], story: list[Any], plan_name: str, plan_date: str | None,
-           kind: str) -> None:
+def _build(story: list[Any], plan_name: str, plan_date: str | None, kind: str) -> bytes:
+    """Lay out *story* on A4 pages with the footer; return the PDF bytes."""
+    import io
+
     from reportlab.lib.pagesizes import A4
     from reportlab.platypus import SimpleDocTemplate
-
-    target = Path(path)
-    folder = target.parent if str(target.parent) else Path(".")
-    if not folder.is_dir():
-        raise OutputError(f"folder {folder} does not exist", where=str(target),
-                          fix="create the output folder first")
 
     def footer(canvas: Any, doc: Any) -> None:
         canvas.saveState()
@@ -321,20 +306,12 @@ def _build(path: str | os.PathLike[str], story: list[Any], plan_name: str, plan_
                                "Planning figures only – see the cautions")
         canvas.restoreState()
 
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
-    os.close(fd)
-    try:
-        doc = SimpleDocTemplate(tmp, pagesize=A4, leftMargin=PAGE_MARGIN_PT, rightMargin=PAGE_MARGIN_PT,
-                                topMargin=PAGE_MARGIN_PT, bottomMargin=PAGE_MARGIN_PT + 14.0,
-                                title=f"{kind} – {plan_name}", author="courseplan")
-        doc.build(story, onFirstPage=footer, onLaterPages=footer)
-        os.replace(tmp, target)
-    except OSError as e:
-        raise OutputError(f"cannot write {target}: {e.strerror or e}", where=str(target),
-                          fix="check the folder is writable and the disk has room") from None
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
+    buf = io.BytesIO()
+    doc = SimpleDocTemplate(buf, pagesize=A4, leftMargin=PAGE_MARGIN_PT, rightMargin=PAGE_MARGIN_PT,
+                            topMargin=PAGE_MARGIN_PT, bottomMargin=PAGE_MARGIN_PT + 14.0,
+                            title=f"{kind} – {plan_name}", author="courseplan")
+    doc.build(story, onFirstPage=footer, onLaterPages=footer)
+    return buf.getvalue()
 
 
 # ---------------------------------------------------------------- maps

@@ -32,6 +32,7 @@ import numpy as np
 
 from courseplan import columns as _columns
 from courseplan.errors import GeometryError, InputError
+from courseplan.geo.crs import is_metric, utm_crs
 
 if TYPE_CHECKING:  # pragma: no cover
     import geopandas
@@ -440,9 +441,10 @@ def _metric(gdf: geopandas.GeoDataFrame, what: str) -> geopandas.GeoDataFrame:
     if gdf.crs is None:
         raise GeometryError(f"the {what} layer has no CRS", where="map",
                             fix="set the layer's CRS before drawing the map")
-    if gdf.crs.is_geographic:
-        return gdf.to_crs(gdf.estimate_utm_crs())
-    return gdf
+    if is_metric(gdf.crs):
+        return gdf
+    c = gdf.to_crs(4326).union_all().centroid
+    return gdf.to_crs(utm_crs(c.x, c.y))
 
 
 def simplify_for_display(geoms: Any, tolerance_m: float) -> np.ndarray:

@@ -21,7 +21,6 @@ import pandas as pd
 
 from courseplan.agents import Agent
 from courseplan.errors import InputError
-from courseplan.stages.weather import Weather
 from courseplan.physics import brine, energy
 from courseplan.physics.dose import (
     TREATED,
@@ -34,6 +33,7 @@ from courseplan.physics.dose import (
     sample_lwc_pct,
     verdicts,
 )
+from courseplan.stages.weather import Weather
 
 __all__ = ["apply_dosing", "zone_energy_j_m2"]
 

@@ -14,7 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from courseplan.errors import CRSError, InputError
+from courseplan.errors import InputError
+from courseplan.geo.crs import require_metric
 from courseplan.physics.solar import ClearSkyWindow, clear_sky_window, sky_view_isotropic
 from courseplan.physics.terrain import (
     ShadowCaster,
@@ -71,24 +72,6 @@ class SunGrids:
         return METHOD
 
 
-def _metric_crs(crs):
-    from pyproj import CRS
-
-    if crs is None:
-        raise CRSError("the DEM has no CRS", where="DEM",
-                       fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
-    try:
-        c = CRS.from_user_input(crs)
-    except Exception as exc:  # pyproj raises its own CRSError type
-        raise CRSError(f"cannot read the DEM's CRS ({exc})", where="DEM",
-                       fix="give an EPSG code or WKT") from None
-    units = {ax.unit_name.lower() for ax in c.axis_info[:2]}
-    if not c.is_projected or not units <= {"metre", "meter", "m"}:
-        raise CRSError(f"the DEM's CRS {c.name!r} is not projected in metres", where="DEM",
-                       fix="read it with courseplan.io.dem.read_dem, which reprojects to the local UTM zone")
-    return c
-
-
 def _site(crs, transform, shape) -> tuple[float, float, float]:
     """Longitude, latitude of the grid centre and the grid-north azimuth there [deg]."""
     from pyproj import Transformer
@@ -117,7 +100,7 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
         ``affine.Affine`` of the grid, without rotation (north-up or south-up); cell size in metres.
     crs
         The DEM's CRS (pyproj or rasterio CRS, EPSG code, WKT), projected in metres.  Geographic DEMs
-        are reprojected by ``courseplan.io.dem.read_dem`` first.
+        are reprojected by ``courseplan.io.rasters.read_dem`` first.
     date, start, end, timezone, step_minutes
         Race-day window: ``YYYY-MM-DD``, local ``HH:MM`` limits, IANA zone, longest step [min].
     nodata_mask
@@ -147,7 +130,7 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
     Working arrays are float32 and reused from step to step: peak memory is about 12 float32 grids
     (460 MB measured for 10 million cells, ``benchmarks/bench_sun.py``).
     """
-    crs_m = _metric_crs(crs)
+    crs_m = require_metric(crs, "DEM", "reproject it to a metric CRS first (courseplan reads DEMs in the local UTM zone)")
     z = np.array(dem, dtype=np.float32, copy=True)
     if z.ndim != 2 or min(z.shape) < 2:
         raise InputError(f"DEM of shape {z.shape} is too small", where="DEM", fix="give at least 2 × 2 cells")

@@ -20,7 +20,6 @@ shortest path inside the course polygon on the cell grid (Dijkstra, ``scipy.spar
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -30,7 +29,16 @@ from shapely.geometry.base import BaseGeometry
 
 from courseplan.columns import ZONING
 from courseplan.errors import InputError, OverlapError
+from courseplan.geo.chainage import cell_xy, distance_of_cells
 from courseplan.geo.geometry import geometry_from_geojson
+from courseplan.geo.raster import burn, fill_nearest
+from courseplan.geo.regions import (
+    clip_to,
+    label_regions,
+    merge_small_pieces,
+    merge_small_regions,
+    polygon_parts,
+)
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
 
@@ -112,412 +120,6 @@ class ZoningResult:
         return gpd.GeoDataFrame(dict(self.table), geometry=list(self.geometries), crs=self.crs)
 
 
-def _rasterize(geom: BaseGeometry, grid: Grid, all_touched: bool, band_rows: int = 128,
-               min_vertices: int = 1000) -> np.ndarray:
-    """Cells of *grid* inside *geom* (centre inside, or touched with *all_touched*), as booleans.
-
-    ``rasterio.features.rasterize`` (GDAL's scan-line fill) costs about rows × vertices, which for
-    a long, winding course outline on a tall window is most of the zoning time.  The grid is
-    therefore burnt in bands of *band_rows* rows, each with the outline clipped
-    (``shapely.clip_by_rect``) to the band plus one cell on every side: the clip's own edges fall
-    outside the band's cells, so every band is burnt exactly as the whole grid would be.  Outlines
-    of fewer than *min_vertices* vertices, and short grids, are burnt in one pass.
-    """
-    from affine import Affine
-    from rasterio.features import rasterize
-
-    h, w = grid.shape
-    t = grid.transform
-    if h <= 2 * band_rows or shapely.get_num_coordinates(geom) < min_vertices or t.b != 0 or t.d != 0 or t.e >= 0:
-        return rasterize([(geom, 1)], out_shape=grid.shape, transform=t, fill=0,
-                         all_touched=all_touched, dtype="uint8").astype(bool)
-    out = np.zeros((h, w), dtype=bool)
-    ch, cw = -t.e, t.a
-    x0, x1 = t.c - cw, t.c + cw * (w + 1)
-    for r0 in range(0, h, band_rows):
-        r1 = min(h, r0 + band_rows)
-        part = shapely.clip_by_rect(geom, x0, t.f - ch * (r1 + 1), x1, t.f - ch * (r0 - 1))
-        burn = _as_arrays(part)
-        if not burn:
-            continue
-        out[r0:r1] = rasterize(burn, out_shape=(r1 - r0, w), transform=t * Affine.translation(0, r0),
-                               fill=0, all_touched=all_touched, dtype="uint8").astype(bool)
-    return out
-
-
-def _as_arrays(geom: BaseGeometry) -> list[tuple[dict, int]]:
-    """(GeoJSON-like polygon with coordinate arrays, 1) per polygon part of *geom*, for rasterize.
-
-    rasterio reads coordinate arrays directly; ``__geo_interface__`` would first build tuples of
-    every vertex in Python.  The parts of a valid polygon are disjoint, so burning them one by one
-    burns their union.
-    """
-    out = []
-    for q in shapely.get_parts(geom):
-        if q.geom_type != "Polygon" or q.is_empty:
-            continue
-        rings = [shapely.get_coordinates(q.exterior)] + [shapely.get_coordinates(r) for r in q.interiors]
-        out.append(({"type": "Polygon", "coordinates": rings}, 1))
-    return out
-
-
-def _fill_nearest(values: np.ndarray, valid: np.ndarray) -> np.ndarray:
-    from scipy.ndimage import distance_transform_edt
-
-    if valid.all():
-        return values
-    idx = distance_transform_edt(~valid, return_distances=False, return_indices=True)
-    return values[tuple(idx)]
-
-
-LATTICE_STEP_M = 8.0
-"""Spacing of the lattice on which a cell's position along the course line is computed exactly [m];
-cells between lattice nodes are interpolated bilinearly (the position is a smooth function of the
-point except on the inner side of sharp bends, where it jumps by less than the course width)."""
-
-
-def _cell_xy(grid: Grid, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Working-CRS x and y of the centres of cells (rows, cols) of a north-up *grid*."""
-    t = grid.transform
-    return t.c + t.a * (cols + 0.5), t.f + t.e * (rows + 0.5)
-
-
-def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid: Grid,
-                    step_m: float = LATTICE_STEP_M) -> np.ndarray:
-    """Position along *line* [m] of the centres of cells (rows, cols).
-
-    ``shapely.line_locate_point`` (GEOS linear referencing) is evaluated on a lattice of about *step_m*
-    around the cells only, and interpolated bilinearly in between: on a 1 m grid that is about 40×
-    fewer projections.  When the cells are coarser than *step_m* every cell is projected exactly.
-    """
-    cw, ch = grid.cell_size
-    s = max(1, int(step_m // max(cw, ch)))
-    if s == 1 or rows.size < 256:
-        x, y = _cell_xy(grid, rows, cols)
-        return shapely.line_locate_point(line, shapely.points(x, y))
-    from scipy.ndimage import map_coordinates
-
-    br, bc = rows // s, cols // s
-    r0, c0 = int(br.min()), int(bc.min())
-    width = int(bc.max()) - c0 + 2
-    height = int(br.max()) - r0 + 2
-    # Lattice blocks holding cells (bincount: much faster than fancy-index assignment), and the
-    # nodes at their four corners.
-    hit = (np.bincount((br - r0) * width + (bc - c0), minlength=height * width) > 0).reshape(height, width)
-    need = hit.copy()
-    need[1:, :] |= hit[:-1, :]
-    need[:, 1:] |= hit[:, :-1]
-    need[1:, 1:] |= hit[:-1, :-1]
-    ni, nj = np.nonzero(need)
-    x, y = _cell_xy(grid, (ni + r0) * s, (nj + c0) * s)
-    # Lattice nodes lie up to one step beyond the outermost cells; GEOS clamps positions beyond the
-    # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
-    margin = 2.0 * s * max(cw, ch)
-    lat = np.zeros(need.shape)
-    lat[ni, nj] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
-    # Bilinear interpolation between the four lattice nodes around each cell (all of them computed).
-    d = map_coordinates(lat, [rows / s - r0, cols / s - c0], order=1, mode="nearest", prefilter=False)
-    return np.clip(d, 0.0, line.length)
-
-
-def _prolong(line: BaseGeometry, margin: float) -> BaseGeometry:
-    """*line* with both end segments prolonged straight by *margin* [m]."""
-    if line.geom_type != "LineString":
-        return line
-    c = shapely.get_coordinates(line)
-    if len(c) < 2:
-        return line
-    u0 = c[0] - c[1]
-    u1 = c[-1] - c[-2]
-    n0, n1 = float(np.hypot(*u0)), float(np.hypot(*u1))
-    if n0 == 0 or n1 == 0:
-        return line
-    return shapely.LineString(np.vstack([c[0] + u0 / n0 * margin, c, c[-1] + u1 / n1 * margin]))
-
-
-def distance_along_course(mask: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
-                          centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
-                          max_nodes: int = 12_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
-                                                            list[str]]:
-    """Distance from the start [m] of every masked cell, following the course.
-
-    A grid wrapper of :func:`distance_of_cells`.  Returns the distance grid (NaN outside the
-    mask), the start and finish used, and notes.
-    """
-    rows, cols = np.nonzero(mask)
-    d, start, finish, notes = distance_of_cells(rows, cols, grid, start_xy, centreline, elevation, max_nodes)
-    dist = np.full(mask.shape, np.nan, dtype=np.float64)
-    dist[rows, cols] = d
-    return dist, start, finish, notes
-
-
-def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: tuple[float, float] | None,
-                      centreline: BaseGeometry | None = None, elevation: np.ndarray | None = None,
-                      max_nodes: int = 12_000) -> tuple[np.ndarray, tuple[float, float], tuple[float, float],
-                                                        list[str]]:
-    """Distance from the start [m] of the course cells (rows, cols) of *grid*, following the course.
-
-    With a centreline: the position of each cell centre projected on the line.  Otherwise the
-    shortest 8-connected path inside the course (Dijkstra, ``scipy.sparse.csgraph``) on the cell
-    grid coarsened to at most *max_nodes* cells; its equal-distance bands give a centreline through
-    their centroids, on which the cells are then projected (the level sets of a geodesic distance
-    from one point are round; sections must cut across the course).  Without a start point the two
-    ends of the course are found by a double sweep (farthest cell from any cell, then farthest from
-    that); the start is the higher end when elevations are given, else the northern end.
-
-    Returns
-    -------
-    distance, start_xy, finish_xy, notes
-        Distance of each cell [m] and the start and finish used.
-    """
-    notes: list[str] = []
-    if centreline is not None:
-        d = _locate_on_line(centreline, rows, cols, grid)
-        s = centreline.interpolate(0.0)
-        f = centreline.interpolate(centreline.length)
-        return d, (s.x, s.y), (f.x, f.y), notes
-
-    from scipy.sparse import coo_matrix
-    from scipy.sparse.csgraph import dijkstra
-
-    k = max(1, int(math.ceil(math.sqrt(rows.size / max_nodes))))
-    cm = np.zeros((int(rows.max()) // k + 1, int(cols.max()) // k + 1), dtype=bool)
-    cm[rows // k, cols // k] = True
-    Rc, Cc = cm.shape
-    node = np.full(cm.shape, -1, dtype=np.int32)
-    nn = int(cm.sum())
-    node[cm] = np.arange(nn, dtype=np.int32)
-    cw, ch = grid.cell_size[0] * k, grid.cell_size[1] * k
-    src, dst, wt = [], [], []
-    for dr, dc in ((0, 1), (1, 0), (1, 1), (1, -1)):
-        a = node[0:Rc - dr, max(0, -dc):Cc - max(0, dc)]
-        b = node[dr:Rc, max(0, dc):Cc - max(0, -dc)]
-        ok = (a >= 0) & (b >= 0)
-        src.append(a[ok])
-        dst.append(b[ok])
-        wt.append(np.full(int(ok.sum()), math.hypot(cw * dc, ch * dr)))
-    g = coo_matrix((np.concatenate(wt), (np.concatenate(src), np.concatenate(dst))), shape=(nn, nn)).tocsr()
-    crow, ccol = np.nonzero(cm)
-    t = grid.transform
-    cx = t.c + t.a * (ccol * k + k / 2.0)
-    cy = t.f + t.e * (crow * k + k / 2.0)
-
-    def far(start_node: int) -> tuple[int, np.ndarray]:
-        d = dijkstra(g, directed=False, indices=start_node)
-        return int(np.argmax(np.where(np.isfinite(d), d, -1))), d
-
-    d_nodes = None
-    if start_xy is None:
-        a_node, _ = far(0)
-        b_node, d_from_a = far(a_node)
-        ends = [a_node, b_node]
-        if elevation is not None:
-            ez = []
-            for e in ends:
-                r0, c0 = crow[e] * k, ccol[e] * k
-                block = elevation[r0:r0 + k, c0:c0 + k]
-                ez.append(np.nanmean(block) if np.isfinite(block).any() else -np.inf)
-            start_node = ends[int(np.argmax(ez))]
-            notes.append("start taken as the higher end of the course (set [zoning] start_xy to choose)")
-        else:
-            start_node = ends[int(np.argmax(cy[ends]))]
-            notes.append("start taken as the northern end of the course: no DEM and no start point "
-                         "(set [zoning] start_xy to choose)")
-        if start_node == a_node:
-            d_nodes = d_from_a  # the sweep's second run already started there
-    else:
-        start_node = int(np.argmin((cx - start_xy[0]) ** 2 + (cy - start_xy[1]) ** 2))
-    if d_nodes is None:
-        d_nodes = dijkstra(g, directed=False, indices=start_node)
-    unreachable = ~np.isfinite(d_nodes)
-    if unreachable.any():
-        d_nodes[unreachable] = np.nanmax(np.where(unreachable, np.nan, d_nodes))
-    finish_node = int(np.argmax(d_nodes))
-    # Centroids of equal-distance bands follow the middle of the course through bends.
-    band = max(2.0 * max(cw, ch), min(20.0, float(np.max(d_nodes)) / 20.0))
-    bidx = np.floor(d_nodes / band).astype(np.int64)
-    nb = int(bidx.max()) + 1
-    bc = np.bincount(bidx, minlength=nb).astype(float)
-    has = bc > 0
-    # Bands at the far end hold only the corner cells: their centroids would bend the line.
-    full = np.nonzero(bc >= 0.5 * np.median(bc[has]))[0]
-    has[: full.min()] = False
-    has[full.max() + 1:] = False
-    mx = np.bincount(bidx, weights=cx, minlength=nb)[has] / bc[has]
-    my = np.bincount(bidx, weights=cy, minlength=nb)[has] / bc[has]
-    start = (float(cx[start_node]), float(cy[start_node]))
-    if start_xy is not None:
-        start = (float(start_xy[0]), float(start_xy[1]))
-    finish = (float(cx[finish_node]), float(cy[finish_node]))
-    coords = list(zip(mx.tolist(), my.tolist(), strict=True))
-    if start_xy is not None:
-        coords = [start] + coords
-    if len(coords) < 2:
-        coords = [start, finish]
-    px, py = _cell_xy(grid, rows, cols)
-    coords = _extend_ends(coords, px, py, extend_start=start_xy is None)
-    line = shapely.LineString(coords).simplify(0.5 * max(cw, ch))
-    start, finish = coords[0], coords[-1]
-    return _locate_on_line(line, rows, cols, grid), start, finish, notes
-
-
-def _extend_ends(coords: list[tuple[float, float]], px: np.ndarray, py: np.ndarray,
-                 extend_start: bool) -> list[tuple[float, float]]:
-    """Prolong the end segments of a line so that every cell projects inside it."""
-    c = np.asarray(coords, dtype=float)
-    if len(c) < 2:
-        return coords
-
-    def ext(a: np.ndarray, b: np.ndarray) -> tuple[float, float] | None:
-        u = b - a
-        n = float(np.hypot(*u))
-        if n == 0:
-            return None
-        u = u / n
-        t = (px - b[0]) * u[0] + (py - b[1]) * u[1]
-        tmax = float(t.max()) if t.size else 0.0
-        return (float(b[0] + u[0] * tmax), float(b[1] + u[1] * tmax)) if tmax > 0 else None
-
-    out = [tuple(x) for x in c.tolist()]
-    e = ext(c[-2], c[-1])
-    if e is not None:
-        out.append(e)
-    if extend_start:
-        s0 = ext(c[1], c[0])
-        if s0 is not None:
-            out.insert(0, s0)
-    return out
-
-
-def _label_regions(code: np.ndarray) -> tuple[np.ndarray, int]:
-    """Number the 4-connected regions of equal non-zero *code* 1 … n (``scipy.ndimage.label`` per code,
-    each inside that code's bounding box from ``find_objects``, so the work follows the course)."""
-    from scipy import ndimage
-
-    region = np.zeros(code.shape, dtype=np.int32)
-    n_reg = 0
-    for c, box in enumerate(ndimage.find_objects(code), start=1):
-        if box is None:
-            continue
-        sub = code[box] == c
-        lab, n = ndimage.label(sub)
-        if n:
-            view = region[box]
-            view[sub] = lab[sub] + n_reg
-            n_reg += n
-    return region, n_reg
-
-
-def _clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
-    """Intersection of each polygon with *course*, exact.
-
-    Polygons that lie inside the course are kept as they are (``contains_properly`` on the
-    prepared course); for the others the overlay runs against the course clipped to the polygon's
-    bounding box (``clip_by_rect``), not against the whole course outline.
-    """
-    out = polys.copy()
-    shapely.prepare(course)
-    cut = ~shapely.contains_properly(course, polys)
-    if cut.any():
-        b = shapely.bounds(polys[cut])
-        local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
-        bad = ~shapely.is_valid(local)
-        local[bad] = course
-        out[cut] = shapely.intersection(polys[cut], local)
-    return out
-
-
-def _code_key(code: int, n_exp: int, n_slope: int) -> tuple[int, int, int]:
-    """(exposure class, slope class, section) of a zone code (``(section·n_exp + exposure)·n_slope + slope + 1``)."""
-    c = code - 1
-    return ((c // n_slope) % n_exp, c % n_slope, c // (n_slope * n_exp))
-
-
-def _similarity(ki: tuple[int, int, int], kj: tuple[int, int, int], shared: float) -> tuple:
-    """Merge preference (smaller is better): same exposure first, then slope class, then section,
-    then the longest shared edge."""
-    return (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -shared)
-
-
-def _merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch: np.ndarray, grid: Grid,
-                         min_area: float, n_exp: int, n_slope: int) -> tuple[np.ndarray, int]:
-    """Merge regions below *min_area* into the most similar neighbour, on the raster.
-
-    The same rule as :func:`_merge_small` (exposure class first, then slope class, then section,
-    then the longest shared edge), with areas counted in cells and shared edges in cell sides.
-    Doing it before polygonising leaves the vector merge only the few pieces that clipping to the
-    exact outline makes small.  Returns the relabelled regions, numbered 1 … n again.
-    """
-    if n_reg < 2:
-        return region, n_reg
-    cw, ch = grid.cell_size
-    area = np.bincount(region[touch], minlength=n_reg + 1).astype(np.float64) * (cw * ch)
-    if not (area[1:] < min_area).any():
-        return region, n_reg
-    pair_parts, len_parts = [], []
-    for a, b, side in ((region[:, :-1], region[:, 1:], ch), (region[:-1, :], region[1:, :], cw)):
-        m = (a != b) & (a > 0) & (b > 0)
-        lo, hi = np.minimum(a[m], b[m]).astype(np.int64), np.maximum(a[m], b[m]).astype(np.int64)
-        pair_parts.append(lo * (n_reg + 1) + hi)
-        len_parts.append(np.full(lo.size, side))
-    keys, inv = np.unique(np.concatenate(pair_parts), return_inverse=True)
-    shared = np.bincount(inv, weights=np.concatenate(len_parts))
-    nb: list[dict[int, float]] = [{} for _ in range(n_reg + 1)]
-    for k, length in zip(keys.tolist(), shared.tolist(), strict=True):
-        i, j = divmod(k, n_reg + 1)
-        nb[i][j] = nb[i].get(j, 0.0) + length
-        nb[j][i] = nb[j].get(i, 0.0) + length
-    reg_code = np.zeros(n_reg + 1, dtype=np.int64)
-    reg_code[region[touch]] = code[touch]
-    key = [_code_key(c, n_exp, n_slope) for c in reg_code.tolist()]
-    alive = np.ones(n_reg + 1, dtype=bool)
-    alive[0] = False
-    target = np.arange(n_reg + 1)
-    import heapq
-
-    heap = [(float(area[i]), i) for i in range(1, n_reg + 1) if area[i] < min_area]
-    heapq.heapify(heap)
-    while heap:
-        a_i, i = heapq.heappop(heap)
-        if not alive[i] or a_i != area[i]:
-            continue
-        best, best_score = None, None
-        for j, length in nb[i].items():
-            if not alive[j]:
-                continue
-            score = _similarity(key[i], key[j], length)
-            if best_score is None or score < best_score:
-                best, best_score = j, score
-        if best is None:
-            continue  # an island: stays a zone of its own
-        alive[i] = False
-        target[i] = best
-        area[best] += area[i]
-        for j, length in nb[i].items():
-            if j == best:
-                continue
-            nb[j].pop(i, None)
-            if alive[j]:
-                nb[j][best] = nb[j].get(best, 0.0) + length
-                nb[best][j] = nb[best].get(j, 0.0) + length
-        nb[best].pop(i, None)
-        nb[i] = {}
-        if area[best] < min_area:
-            heapq.heappush(heap, (float(area[best]), best))
-    # Follow the merge chains to the surviving region, then renumber 1 … n.
-    for i in range(1, n_reg + 1):
-        j = i
-        while target[j] != j:
-            j = target[j]
-        target[i] = j
-    lut = np.zeros(n_reg + 1, dtype=np.int32)
-    survivors = np.flatnonzero(alive)
-    lut[survivors] = np.arange(1, survivors.size + 1, dtype=np.int32)
-    lut = lut[target]
-    lut[0] = 0
-    return lut[region], int(survivors.size)
-
-
 def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 max_uncovered_pct: float = 5.0) -> ZoningResult:
     """Split the course into zones (see the module docstring for the steps).
@@ -553,7 +155,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
 
     grid = inp.sun
     notes: list[str] = []
-    touch_w = _rasterize(inp.course, grid, all_touched=True)
+    touch_w = burn(inp.course, grid, all_touched=True)
     if not touch_w.any():
         raise OverlapError("the sun raster window holds no cell of the course", where=grid.source,
                            fix="check that the raster covers the course")
@@ -571,7 +173,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     valid_t = np.isfinite(vt)
     uncovered = 0.0
     if not valid_t.all():
-        inside = _rasterize(inp.course, cgrid, all_touched=False)
+        inside = burn(inp.course, cgrid, all_touched=False)
         if not inside.any():
             inside = touch
         uncovered = float((inside & ~np.isfinite(v)).sum()) / float(inside.sum())
@@ -594,7 +196,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                          fix="set [inputs] sun_encoding to fraction (0–1), percent (0–100) or wh_m2")
     if not valid_t.all():
         ok = np.isfinite(v)
-        vt = _fill_nearest(np.where(ok, v, 0.0), ok)[touch].astype(np.float64)
+        vt = fill_nearest(np.where(ok, v, 0.0), ok)[touch].astype(np.float64)
 
     breaks = list(settings.exposure_breaks or default_breaks(inp.encoding, window_hours))
     labels = settings.exposure_labels
@@ -611,7 +213,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         at = a[touch].astype(np.float64)
         if not np.isfinite(at).all():
             ok = np.isfinite(a)
-            at = _fill_nearest(np.where(ok, a, 0.0), ok)[touch].astype(np.float64) if ok.any() else \
+            at = fill_nearest(np.where(ok, a, 0.0), ok)[touch].astype(np.float64) if ok.any() else \
                 np.zeros_like(at)
         return at
 
@@ -635,7 +237,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     notes += dnotes
     L = settings.section_length_m
     if inp.markers:
-        px, py = _cell_xy(cgrid, rows, cols)
+        px, py = cell_xy(cgrid, rows, cols)
         mk = sorted((float(dist_t[int(np.argmin((px - x) ** 2 + (py - y) ** 2))]), name)
                     for name, x, y in inp.markers)
         mdist = np.array([m[0] for m in mk])
@@ -653,8 +255,8 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         code_t = sieve(code, size=speckle, mask=touch, connectivity=4)[touch]
         code[:] = 0
         code[touch] = code_t
-    region, n_reg = _label_regions(code)
-    region, n_reg = _merge_small_regions(region, n_reg, code, touch, cgrid, settings.min_zone_area_m2,
+    region, n_reg = label_regions(code)
+    region, n_reg = merge_small_regions(region, n_reg, code, touch, cgrid, settings.min_zone_area_m2,
                                          n_exp, n_slope)
     region_t = region[touch]
     nreg = n_reg + 1
@@ -687,13 +289,13 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         g = geometry_from_geojson(gj)
         polys[r] = shapely.union(polys[r], g) if r in polys else g
     reg_ids = sorted(polys)
-    clipped = _clip_to(np.array([polys[r] for r in reg_ids], dtype=object), inp.course)
+    clipped = clip_to(np.array([polys[r] for r in reg_ids], dtype=object), inp.course)
     pieces = []
     for r, g in zip(reg_ids, clipped, strict=True):
-        for part in _polygons(g):
+        for part in polygon_parts(g):
             if part.area > 0:
                 pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
-    merged = _merge_small(pieces, settings.min_zone_area_m2, n_exp, n_slope)
+    merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope)
 
     cols_out: dict[str, list] = {c: [] for c in (
         "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
@@ -748,74 +350,3 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                         uncovered_share=uncovered, notes=tuple(notes), exposure_grid=exposure_grid)
 
 
-def _polygons(g: BaseGeometry) -> list[BaseGeometry]:
-    if g is None or g.is_empty:
-        return []
-    if g.geom_type == "Polygon":
-        return [g]
-    if g.geom_type in ("MultiPolygon", "GeometryCollection"):
-        out = []
-        for p in g.geoms:
-            out += _polygons(p)
-        return out
-    return []
-
-
-def _merge_small(pieces: list[dict], min_area: float, n_exp: int, n_slope: int) -> list[dict]:
-    """Merge pieces below *min_area* into the most similar touching neighbour.
-
-    Similarity: the difference in exposure class counts most, then slope class, then section;
-    among equally similar neighbours the one sharing the longest edge wins.  A small piece with no
-    neighbour (an island of a multi-part course) stays a zone of its own.
-    """
-    zones = [{"geom": p["geom"], "code": p["code"], "regions": [p["region"]], "weights": [p["area"]],
-              "alive": True} for p in pieces]
-    if not zones:
-        return []
-    tree = shapely.STRtree([z["geom"] for z in zones])
-    neighbours: list[set[int]] = [set() for _ in zones]
-    left, right = tree.query([z["geom"] for z in zones], predicate="intersects")
-    for a, b in zip(left.tolist(), right.tolist(), strict=True):
-        if a != b:
-            neighbours[a].add(b)
-    # Parent pointers: merged zones live on in the absorbing zone.
-    def key(z: dict) -> tuple[int, int, int]:
-        return _code_key(z["code"], n_exp, n_slope)
-
-    stuck: set[int] = set()
-    while True:
-        small = [i for i, z in enumerate(zones) if z["alive"] and z["geom"].area < min_area and i not in stuck]
-        if not small:
-            break
-        i = min(small, key=lambda j: zones[j]["geom"].area)
-        zi = zones[i]
-        ki = key(zi)
-        best, best_score = None, None
-        for j in neighbours[i]:
-            zj = zones[j]
-            if not zj["alive"]:
-                continue
-            shared = zi["geom"].boundary.intersection(zj["geom"].boundary).length
-            if shared <= 0:
-                continue
-            score = _similarity(ki, key(zj), shared)
-            if best_score is None or score < best_score:
-                best, best_score = j, score
-        if best is None:
-            stuck.add(i)
-            continue
-        zb = zones[best]
-        zb["geom"] = shapely.union(zb["geom"], zi["geom"])
-        if zb["geom"].geom_type != "Polygon":
-            zb["geom"] = max(_polygons(shapely.make_valid(zb["geom"])), key=lambda g: g.area) \
-                if len(_polygons(zb["geom"])) == 1 else shapely.unary_union(_polygons(zb["geom"]))
-        zb["regions"] += zi["regions"]
-        zb["weights"] += zi["weights"]
-        zi["alive"] = False
-        neighbours[best] |= neighbours[i]
-        neighbours[best].discard(best)
-        for j in neighbours[i]:
-            neighbours[j].discard(i)
-            if j != best:
-                neighbours[j].add(best)
-    return [z for z in zones if z["alive"]]

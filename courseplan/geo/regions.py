@@ -1,0 +1,222 @@
+"""Regions of a class raster: label, merge the small ones, clip to the course, polygon parts.
+
+Connected-component labelling (``scipy.ndimage.label``), the merge of regions below the minimum
+area into their most similar touching neighbour (on the raster, then on clipped vector pieces,
+with one shared similarity rule), and the exact clip of polygons to the course outline.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import shapely
+from shapely.geometry.base import BaseGeometry
+
+from courseplan.grid import Grid
+
+
+def label_regions(code: np.ndarray) -> tuple[np.ndarray, int]:
+    """Number the 4-connected regions of equal non-zero *code* 1 … n (``scipy.ndimage.label`` per code,
+    each inside that code's bounding box from ``find_objects``, so the work follows the course)."""
+    from scipy import ndimage
+
+    region = np.zeros(code.shape, dtype=np.int32)
+    n_reg = 0
+    for c, box in enumerate(ndimage.find_objects(code), start=1):
+        if box is None:
+            continue
+        sub = code[box] == c
+        lab, n = ndimage.label(sub)
+        if n:
+            view = region[box]
+            view[sub] = lab[sub] + n_reg
+            n_reg += n
+    return region, n_reg
+
+
+
+def clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
+    """Intersection of each polygon with *course*, exact.
+
+    Polygons that lie inside the course are kept as they are (``contains_properly`` on the
+    prepared course); for the others the overlay runs against the course clipped to the polygon's
+    bounding box (``clip_by_rect``), not against the whole course outline.
+    """
+    out = polys.copy()
+    shapely.prepare(course)
+    cut = ~shapely.contains_properly(course, polys)
+    if cut.any():
+        b = shapely.bounds(polys[cut])
+        local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
+        bad = ~shapely.is_valid(local)
+        local[bad] = course
+        out[cut] = shapely.intersection(polys[cut], local)
+    return out
+
+
+
+def code_key(code: int, n_exp: int, n_slope: int) -> tuple[int, int, int]:
+    """(exposure class, slope class, section) of a zone code (``(section·n_exp + exposure)·n_slope + slope + 1``)."""
+    c = code - 1
+    return ((c // n_slope) % n_exp, c % n_slope, c // (n_slope * n_exp))
+
+
+
+def _similarity(ki: tuple[int, int, int], kj: tuple[int, int, int], shared: float) -> tuple:
+    """Merge preference (smaller is better): same exposure first, then slope class, then section,
+    then the longest shared edge."""
+    return (abs(ki[0] - kj[0]), abs(ki[1] - kj[1]), abs(ki[2] - kj[2]), -shared)
+
+
+
+def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch: np.ndarray, grid: Grid,
+                         min_area: float, n_exp: int, n_slope: int) -> tuple[np.ndarray, int]:
+    """Merge regions below *min_area* into the most similar neighbour, on the raster.
+
+    The same rule as :func:`merge_small_pieces` (exposure class first, then slope class, then section,
+    then the longest shared edge), with areas counted in cells and shared edges in cell sides.
+    Doing it before polygonising leaves the vector merge only the few pieces that clipping to the
+    exact outline makes small.  Returns the relabelled regions, numbered 1 … n again.
+    """
+    if n_reg < 2:
+        return region, n_reg
+    cw, ch = grid.cell_size
+    area = np.bincount(region[touch], minlength=n_reg + 1).astype(np.float64) * (cw * ch)
+    if not (area[1:] < min_area).any():
+        return region, n_reg
+    pair_parts, len_parts = [], []
+    for a, b, side in ((region[:, :-1], region[:, 1:], ch), (region[:-1, :], region[1:, :], cw)):
+        m = (a != b) & (a > 0) & (b > 0)
+        lo, hi = np.minimum(a[m], b[m]).astype(np.int64), np.maximum(a[m], b[m]).astype(np.int64)
+        pair_parts.append(lo * (n_reg + 1) + hi)
+        len_parts.append(np.full(lo.size, side))
+    keys, inv = np.unique(np.concatenate(pair_parts), return_inverse=True)
+    shared = np.bincount(inv, weights=np.concatenate(len_parts))
+    nb: list[dict[int, float]] = [{} for _ in range(n_reg + 1)]
+    for k, length in zip(keys.tolist(), shared.tolist(), strict=True):
+        i, j = divmod(k, n_reg + 1)
+        nb[i][j] = nb[i].get(j, 0.0) + length
+        nb[j][i] = nb[j].get(i, 0.0) + length
+    reg_code = np.zeros(n_reg + 1, dtype=np.int64)
+    reg_code[region[touch]] = code[touch]
+    key = [code_key(c, n_exp, n_slope) for c in reg_code.tolist()]
+    alive = np.ones(n_reg + 1, dtype=bool)
+    alive[0] = False
+    target = np.arange(n_reg + 1)
+    import heapq
+
+    heap = [(float(area[i]), i) for i in range(1, n_reg + 1) if area[i] < min_area]
+    heapq.heapify(heap)
+    while heap:
+        a_i, i = heapq.heappop(heap)
+        if not alive[i] or a_i != area[i]:
+            continue
+        best, best_score = None, None
+        for j, length in nb[i].items():
+            if not alive[j]:
+                continue
+            score = _similarity(key[i], key[j], length)
+            if best_score is None or score < best_score:
+                best, best_score = j, score
+        if best is None:
+            continue  # an island: stays a zone of its own
+        alive[i] = False
+        target[i] = best
+        area[best] += area[i]
+        for j, length in nb[i].items():
+            if j == best:
+                continue
+            nb[j].pop(i, None)
+            if alive[j]:
+                nb[j][best] = nb[j].get(best, 0.0) + length
+                nb[best][j] = nb[best].get(j, 0.0) + length
+        nb[best].pop(i, None)
+        nb[i] = {}
+        if area[best] < min_area:
+            heapq.heappush(heap, (float(area[best]), best))
+    # Follow the merge chains to the surviving region, then renumber 1 … n.
+    for i in range(1, n_reg + 1):
+        j = i
+        while target[j] != j:
+            j = target[j]
+        target[i] = j
+    lut = np.zeros(n_reg + 1, dtype=np.int32)
+    survivors = np.flatnonzero(alive)
+    lut[survivors] = np.arange(1, survivors.size + 1, dtype=np.int32)
+    lut = lut[target]
+    lut[0] = 0
+    return lut[region], int(survivors.size)
+
+
+
+def polygon_parts(g: BaseGeometry) -> list[BaseGeometry]:
+    if g is None or g.is_empty:
+        return []
+    if g.geom_type == "Polygon":
+        return [g]
+    if g.geom_type in ("MultiPolygon", "GeometryCollection"):
+        out = []
+        for p in g.geoms:
+            out += polygon_parts(p)
+        return out
+    return []
+
+
+
+def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope: int) -> list[dict]:
+    """Merge pieces below *min_area* into the most similar touching neighbour.
+
+    Similarity: the difference in exposure class counts most, then slope class, then section;
+    among equally similar neighbours the one sharing the longest edge wins.  A small piece with no
+    neighbour (an island of a multi-part course) stays a zone of its own.
+    """
+    zones = [{"geom": p["geom"], "code": p["code"], "regions": [p["region"]], "weights": [p["area"]],
+              "alive": True} for p in pieces]
+    if not zones:
+        return []
+    tree = shapely.STRtree([z["geom"] for z in zones])
+    neighbours: list[set[int]] = [set() for _ in zones]
+    left, right = tree.query([z["geom"] for z in zones], predicate="intersects")
+    for a, b in zip(left.tolist(), right.tolist(), strict=True):
+        if a != b:
+            neighbours[a].add(b)
+    # Parent pointers: merged zones live on in the absorbing zone.
+    def key(z: dict) -> tuple[int, int, int]:
+        return code_key(z["code"], n_exp, n_slope)
+
+    stuck: set[int] = set()
+    while True:
+        small = [i for i, z in enumerate(zones) if z["alive"] and z["geom"].area < min_area and i not in stuck]
+        if not small:
+            break
+        i = min(small, key=lambda j: zones[j]["geom"].area)
+        zi = zones[i]
+        ki = key(zi)
+        best, best_score = None, None
+        for j in neighbours[i]:
+            zj = zones[j]
+            if not zj["alive"]:
+                continue
+            shared = zi["geom"].boundary.intersection(zj["geom"].boundary).length
+            if shared <= 0:
+                continue
+            score = _similarity(ki, key(zj), shared)
+            if best_score is None or score < best_score:
+                best, best_score = j, score
+        if best is None:
+            stuck.add(i)
+            continue
+        zb = zones[best]
+        zb["geom"] = shapely.union(zb["geom"], zi["geom"])
+        if zb["geom"].geom_type != "Polygon":
+            zb["geom"] = max(polygon_parts(shapely.make_valid(zb["geom"])), key=lambda g: g.area) \
+                if len(polygon_parts(zb["geom"])) == 1 else shapely.unary_union(polygon_parts(zb["geom"]))
+        zb["regions"] += zi["regions"]
+        zb["weights"] += zi["weights"]
+        zi["alive"] = False
+        neighbours[best] |= neighbours[i]
+        neighbours[best].discard(best)
+        for j in neighbours[i]:
+            neighbours[j].discard(i)
+            if j != best:
+                neighbours[j].add(best)
+    return [z for z in zones if z["alive"]]
