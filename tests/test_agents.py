@@ -4,7 +4,8 @@ import json
 
 import pytest
 
-from courseplan.agents import AGENT_FIELDS, CONFIDENCE, Agent, catalogue, get_agent
+from courseplan.agents import catalogue, get_agent
+from courseplan.agents.record import AGENT_FIELDS, CONFIDENCE, Agent
 from courseplan.errors import AgentError, MissingInputError
 from courseplan.io.agentfile import load_catalogue, read_agents_file
 

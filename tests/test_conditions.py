@@ -8,7 +8,8 @@ import pandas as pd
 import pytest
 from shapely.geometry import Point, box
 
-from courseplan.stages.conditions import assign_snow, class_lwc_pct, wetness_of
+from courseplan.physics.snow import class_lwc_pct, wetness_of
+from courseplan.stages.conditions import assign_snow
 from courseplan.settings import PlanSettings, Snow
 
 CRS = "EPSG:32632"

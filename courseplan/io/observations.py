@@ -20,8 +20,8 @@ from pyproj import CRS, Transformer
 
 from courseplan.errors import CRSError, InputError, ObservationError
 from courseplan.io.files import check_readable
+from courseplan.physics.snow import WETNESS_NAMES
 
-WETNESS_NAMES = ("dry", "moist", "wet", "very-wet", "soaked")
 ICE_DENSITY = 916.7  # kg/m³ at 0 °C, IAPWS-06 (Feistel & Wagner 2006)
 ALIASES = {"id": "obs_id", "name": "obs_id", "datetime": "time", "timestamp": "time", "lng": "lon",
            "long": "lon", "longitude": "lon", "latitude": "lat", "lwc": "lwc_pct", "theta_pct": "lwc_pct",

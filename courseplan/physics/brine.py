@@ -51,7 +51,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from courseplan.agents import Agent, get_agent
+from courseplan.agents import get_agent
+from courseplan.agents.record import Agent
 from courseplan.constants import CP_ICE_0C, CP_ICE_SLOPE, CP_WATER, K_CRYOSCOPIC, L_FUSION
 
 __all__ = [

@@ -41,23 +41,14 @@ from courseplan.agents import get_agent
 from courseplan.constants import L_FUSION, RHO_WATER
 from courseplan.errors import InputError
 from courseplan.physics import brine
+from courseplan.physics.snow import WETNESS_CLASSES
 
 __all__ = [
-    "ColdBalance", "Calibration", "NEW_SNOW_GRAINS", "VERDICTS", "VERDICT_ORDER", "WETNESS_CLASSES",
+    "ColdBalance", "Calibration", "NEW_SNOW_GRAINS", "VERDICTS", "VERDICT_ORDER",
     "calibrate_patch", "cold_balance", "latin_hypercube", "layer_water_ice", "max_salt_per_pass_kg_m2",
     "pass_temperature_c", "passes_needed", "salt_dose_kg_m2", "sample_lwc_pct", "verdicts",
     "water_to_remove_kg_m2",
 ]
-
-WETNESS_CLASSES: dict[str, tuple[float, float]] = {
-    "dry": (0.0, 0.0),
-    "moist": (0.0, 3.0),
-    "wet": (3.0, 8.0),
-    "very-wet": (8.0, 15.0),
-    "soaked": (15.0, 25.0),
-}
-"""Liquid water content bounds per wetness class [% vol], Fierz et al. (2009) [published]; the
-upper bound of 'soaked' (open-ended in the classification) is a sampling assumption [practice]."""
 
 NEW_SNOW_GRAINS = ("PP", "DF")
 """Grain classes of new snow (precipitation particles, decomposing fragments), Fierz et al. 2009."""

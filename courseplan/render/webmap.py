@@ -33,6 +33,7 @@ import numpy as np
 from courseplan import columns as _columns
 from courseplan.errors import GeometryError, InputError
 from courseplan.geo.crs import is_metric, utm_crs
+from courseplan.physics.snow import wetness_of
 
 if TYPE_CHECKING:  # pragma: no cover
     import geopandas
@@ -731,9 +732,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
             wet = vals.get("wetness")
             lwc = vals.get("lwc_pct")
             if not wet and isinstance(lwc, (int, float)):
-                # classes of Fierz et al. (2009): moist ≤ 3, wet ≤ 8, very wet ≤ 15 % vol, soaked above
-                wet = ("dry" if lwc <= 0 else "moist" if lwc <= 3 else "wet" if lwc <= 8
-                       else "very-wet" if lwc <= 15 else "soaked")
+                wet = wetness_of(lwc)
             rows = [(k, format_value(v, (units or {}).get(k, OBSERVATION_UNITS.get(k, "")),
                                      "int" if k in _OBS_INT else None))
                     for k, v in vals.items() if k not in _OBS_HIDDEN]

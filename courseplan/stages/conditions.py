@@ -20,26 +20,10 @@ import numpy as np
 import pandas as pd
 
 from courseplan.errors import SettingsError
-from courseplan.physics.dose import WETNESS_CLASSES
+from courseplan.physics.snow import WETNESS_CLASSES, class_lwc_pct, wetness_of
 from courseplan.settings import PlanSettings
 
 FIELDS = ("lwc_pct", "density_kg_m3", "snow_temp_c")
-
-
-def class_lwc_pct(wetness: str) -> float:
-    """Representative liquid water content of a wetness class: the middle of its range [% vol]."""
-    lo, hi = WETNESS_CLASSES[wetness]
-    return 0.5 * (lo + hi)
-
-
-def wetness_of(lwc_pct: float) -> str:
-    """Wetness class (Fierz et al. 2009) of a liquid water content [% vol]."""
-    if lwc_pct <= 0:
-        return "dry"
-    for name in ("moist", "wet", "very-wet"):
-        if lwc_pct <= WETNESS_CLASSES[name][1]:
-            return name
-    return "soaked"
 
 
 def class_default(settings: PlanSettings, exposure_class: str) -> dict:

@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from courseplan.agents import Agent
+from courseplan.agents.record import Agent
 from courseplan.errors import InputError
 from courseplan.physics import brine, energy
 from courseplan.physics.dose import (
@@ -33,6 +33,7 @@ from courseplan.physics.dose import (
     sample_lwc_pct,
     verdicts,
 )
+from courseplan.physics.snow import WETNESS_CLASSES, class_range_text
 from courseplan.stages.weather import Weather
 
 __all__ = ["apply_dosing", "zone_energy_j_m2"]
@@ -204,8 +205,7 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
     rows = []
     for i in range(nz):
         if out["lwc_sampled"].iat[i]:
-            lo_hi = {"moist": "0–3", "wet": "3–8", "very-wet": "8–15", "soaked": "15–25", "dry": "0"}.get(
-                str(wet[i]), "?")
+            lo_hi = class_range_text(str(wet[i])) if str(wet[i]) in WETNESS_CLASSES else "?"
             lw = f"θ {lwc[i]:.1f} % ({src[i]}, class {wet[i]}: sampled {lo_hi} %)"
         else:
             lw = f"θ {lwc[i]:.1f} % ({src[i]})"
