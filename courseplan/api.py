@@ -56,3 +56,42 @@ def check(settings: PlanSettings):
     inputs = load_inputs(settings, collect=True)
     # a dry run of the stages catches what only the data can tell (coverage, encodings, classes)
     return tuple(inputs.notes), run_plan(settings, inputs)
+
+
+def sun(dem_path: str | Path, out: str | Path, *, date: str, start: str, end: str, timezone: str,
+        step_minutes: float = 15.0, overwrite: bool = False, progress=None) -> dict:
+    """Sun and shade over a window from a DEM, written as the two-band sun GeoTIFF.
+
+    Returns
+    -------
+    dict
+        ``path``, grid size (``rows``, ``cols``, ``cell_m``, ``crs``), ``steps``, ``step_min``,
+        ``mean_sun_fraction`` and ``mean_irradiation_wh_m2``.
+    """
+    import numpy as np
+
+    from courseplan import __version__
+    from courseplan.io.files import refuse_existing
+    from courseplan.io.rasters import read_dem, write_sun_tiff
+    from courseplan.physics.solar import window_times
+    from courseplan.stages.sun import sun_from_dem
+
+    refuse_existing(Path(out), overwrite, kind="file")
+    window_times(date, start, end, timezone, step_minutes)  # validate before reading
+    dem = read_dem(dem_path)
+    grids = sun_from_dem(dem.values, dem.transform, dem.crs, date=date, start=start, end=end,
+                         timezone=timezone, step_minutes=step_minutes, progress=progress)
+    cs = grids.window
+    tags = {"date": date, "window_start": cs.start.isoformat(), "window_end": cs.end.isoformat(),
+            "timezone": timezone, "step_minutes": f"{cs.step_hours * 60:.6g}", "time_steps": cs.n_steps,
+            "site_lat_lon_alt": f"{cs.latitude:.6f} {cs.longitude:.6f} {cs.altitude_m:.1f}",
+            "grid_north_deg": f"{grids.grid_north_deg:.4f}", "method": grids.method,
+            "source_dem": str(dem_path), "software": f"courseplan {__version__}"}
+    path = write_sun_tiff(out, grids.sun_fraction, grids.irradiation_wh_m2, dem.transform, dem.crs,
+                          tags=tags, overwrite=overwrite)
+    ok = np.isfinite(grids.sun_fraction)
+    n_rows, n_cols = dem.values.shape
+    return {"path": str(path), "rows": n_rows, "cols": n_cols, "cell_m": abs(dem.transform.a),
+            "crs": dem.crs.name, "steps": cs.n_steps, "step_min": cs.step_hours * 60,
+            "mean_sun_fraction": float(np.mean(grids.sun_fraction[ok])) if ok.any() else float("nan"),
+            "mean_irradiation_wh_m2": float(np.mean(grids.irradiation_wh_m2[ok])) if ok.any() else float("nan")}

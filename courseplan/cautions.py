@@ -7,6 +7,8 @@ fertilise alpine meadows (Rixen et al. 2003); crew safety lines are common pract
 
 from __future__ import annotations
 
+from typing import Any
+
 GENERAL: tuple[str, ...] = (
     "Planning figures only: they are estimates from a model and the inputs given, not an instruction.",
     "Follow the product safety data sheet, local environmental rules, the race jury's decisions and "
@@ -52,3 +54,28 @@ def cautions_for(agent_name: str, nitrogen_fraction: float = 0.0, *, nitrate: bo
     if nitrogen_fraction > 0:
         lines += NITROGEN
     return lines
+
+
+def storage_cautions(agent: Any) -> tuple[str, ...]:
+    """Storage cautions for the order (the project's own wording).
+
+    Facts: ammonium nitrate is an oxidiser (UN 1942, class 5.1), not to be stored or mixed with
+    chlorides, and an EU-restricted explosives precursor (Regulation (EU) 2019/1148) [V, domain-data
+    §9]; the duty to report thefts and losses under that regulation is from memory; dry, covered storage
+    and corrosion by chlorides are common practice, no source.
+    """
+    lines = ["Store bags closed, dry and off the ground, under cover and away from streams and drains."]
+    formula = str(getattr(agent, "formula", "") or "").upper().replace(" ", "")
+    name = str(getattr(agent, "name", "") or "").upper()
+    if getattr(agent, "oxidiser", False):
+        lines.append("Oxidiser: store apart from fuels, oils, wood, straw and other organic matter, and "
+                     "away from heat and flames.")
+        lines.append("Keep apart from chloride agents (road salt, calcium or magnesium chloride) in the "
+                     "store, on the trucks and at the depots; never mix them.")
+        if "NH4NO3" in formula or "NH4NO3" in name or "NITRATE" in name:
+            lines.append("In the EU ammonium nitrate is a restricted explosives precursor (Regulation (EU) "
+                         "2019/1148): keep it locked, count it in and out, and report losses or thefts.")
+    if float(getattr(agent, "chloride_fraction", 0.0) or 0.0) > 0:
+        lines.append("Chloride: keep apart from ammonium nitrate in the store and at the depots; it "
+                     "corrodes steel, so keep it off bare metal and rinse tools and vehicles.")
+    return tuple(lines)

@@ -21,8 +21,12 @@ class Column:
     kind: str = "float"  # float | int | str | bool
 
 
+NO_UNIT = "-"
+"""Unit written for text, ids, flags and pure numbers."""
+
+
 def _cols(stage: str, *rows: tuple[str, str, str, str]) -> list[Column]:
-    return [Column(n, u, m, stage, k) for n, u, m, k in rows]
+    return [Column(n, u or NO_UNIT, m, stage, k) for n, u, m, k in rows]
 
 
 ZONING = _cols(
@@ -34,12 +38,22 @@ ZONING = _cols(
     ("slope_class", "", "slope class (from the DEM; 'n/a' without one)", "str"),
     ("sun_fraction", "0–1", "mean share of the hold window in direct sun (NaN when the raster holds "
                             "irradiation only)", "float"),
-    ("irradiation_wh_m2", "Wh/m²", "mean irradiation over the window (NaN when the raster holds a "
-                                    "sun share only)", "float"),
+    ("raster_irradiation_wh_m2", "Wh/m²", "mean of the sun/shade raster over the window when it holds "
+                                           "irradiation (NaN when it holds a sun share)", "float"),
     ("slope_deg", "°", "mean slope (0 without a DEM)", "float"),
+    ("aspect_deg", "°", "mean aspect, clockwise from grid north (NaN without a DEM)", "float"),
+    ("exposure_rank", "-", "exposure class index, 0 = darkest", "int"),
+    ("section_index", "-", "course section index, 0 = first from the start", "int"),
     ("distance_from_start_m", "m", "mean distance from the start along the course", "float"),
     ("map_area_m2", "m²", "planimetric (map) area", "float"),
     ("area_m2", "m²", "snow-surface area used for quantities: map area / cos(slope)", "float"),
+)
+
+SUN = _cols(
+    "sun",
+    ("irradiation_wh_m2", "Wh/m²", "irradiation on the zone's surface over the window: the raster's own "
+                                   "figure, or clear sky on the zone's slope with the beam scaled by its "
+                                   "sun share", "float"),
 )
 
 CONDITIONS = _cols(
@@ -55,6 +69,8 @@ CONDITIONS = _cols(
      "float"),
     ("obs_age_h", "h", "age of the observation at the window start (NaN for class default)", "float"),
     ("obs_stale", "", "observation older than the set age before the window", "bool"),
+    ("lwc_from_class", "", "the liquid water content stands for a wetness class, not a measurement "
+                           "(then it is sampled inside the class)", "bool"),
 )
 
 DOSING = _cols(
@@ -118,7 +134,7 @@ CREW_LAYER = _cols(
 )
 """Columns of the ``crews`` layer (one row per crew; not part of the zones table)."""
 
-ALL: list[Column] = ZONING + CONDITIONS + DOSING + LOGISTICS
+ALL: list[Column] = ZONING + SUN + CONDITIONS + DOSING + LOGISTICS
 BY_NAME: dict[str, Column] = {c.name: c for c in ALL}
 
 
@@ -127,7 +143,37 @@ def declared(stage: str) -> list[Column]:
     return [c for c in ALL if c.stage == stage]
 
 
+def check_stage(stage: str, before, after) -> None:
+    """Raise :class:`~courseplan.errors.ContractError` unless *after* adds exactly *stage*'s declared columns.
+
+    *before* and *after* are column names (or tables) of the zones table before and after the stage;
+    ``geometry`` is ignored.
+    """
+    from courseplan.errors import ContractError
+
+    b = {str(c) for c in before} - {"geometry"}
+    a = {str(c) for c in after} - {"geometry"}
+    want = {c.name for c in declared(stage)}
+    missing = sorted(want - a)
+    extra = sorted(a - b - want)
+    if missing or extra:
+        parts = ([f"missing {', '.join(missing)}"] if missing else []) + (
+            [f"undeclared {', '.join(extra)}"] if extra else [])
+        raise ContractError(f"the {stage} stage broke its column contract: {'; '.join(parts)}",
+                            where=f"courseplan.columns ({stage})",
+                            fix="declare the column in courseplan/columns.py or stop writing it")
+
+
 def unit(name: str) -> str:
     """Unit of a declared column ('' when dimensionless or unknown)."""
     c = BY_NAME.get(name)
-    return c.unit if c else ""
+    return c.unit if c and c.unit != NO_UNIT else ""
+
+
+def markdown_table(cols: list[Column], *, with_stage: bool = True) -> str:
+    """The columns as the Markdown table of ``docs/outputs.md`` (that file must hold it verbatim)."""
+    head = "| column | unit | stage | meaning |\n|---|---|---|---|" if with_stage else \
+        "| column | unit | meaning |\n|---|---|---|"
+    rows = [f"| `{c.name}` | {c.unit} | {c.stage} | {c.meaning} |" if with_stage
+            else f"| `{c.name}` | {c.unit} | {c.meaning} |" for c in cols]
+    return "\n".join([head, *rows])

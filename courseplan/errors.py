@@ -85,6 +85,10 @@ class OutputError(CourseplanError, OSError):
     """An output cannot be written (the folder exists, or the disk refused)."""
 
 
+class ContractError(CourseplanError, RuntimeError):
+    """A stage broke its declared contract (a missing or undeclared column): a bug, not bad input."""
+
+
 class ProblemList(CourseplanError):
     """Several problems found at once (``courseplan check``).
 

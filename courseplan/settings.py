@@ -79,7 +79,7 @@ class Window:
     @property
     def hours(self) -> float:
         """Length of the window [h]."""
-        return (_minutes(self.end, "window.end") - _minutes(self.start, "window.start")) / 60.0
+        return (minutes_of(self.end, "window.end") - minutes_of(self.start, "window.start")) / 60.0
 
 
 @dataclass(frozen=True)
@@ -232,7 +232,7 @@ SECTIONS: dict[str, type] = {f.name: f.default_factory().__class__  # type: igno
                              for f in dataclasses.fields(PlanSettings)}
 
 
-def _minutes(hhmm: str, where: str) -> int:
+def minutes_of(hhmm: str, where: str) -> int:
     try:
         h, m = hhmm.split(":")
         hi, mi = int(h), int(m)

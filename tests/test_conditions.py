@@ -9,8 +9,8 @@ import pytest
 from shapely.geometry import Point, box
 
 from courseplan.physics.snow import class_lwc_pct, wetness_of
-from courseplan.stages.conditions import assign_snow
 from courseplan.settings import PlanSettings, Snow
+from courseplan.stages.conditions import assign_snow
 
 CRS = "EPSG:32632"
 

@@ -8,11 +8,11 @@ import pytest
 
 from courseplan import columns
 from courseplan.agents import get_agent
-from courseplan.stages.dosing import apply_dosing, zone_energy_j_m2
 from courseplan.errors import InputError
-from courseplan.stages.weather import weather_from_settings
 from courseplan.physics.dose import VERDICTS
 from courseplan.settings import Dosing, Forecast, PlanInfo, PlanSettings
+from courseplan.stages.dosing import apply_dosing, zone_energy_j_m2
+from courseplan.stages.weather import weather_from_settings
 
 
 def _zones(**over):

@@ -8,9 +8,9 @@ import pandas as pd
 import pytest
 
 from courseplan.errors import InputError, MissingInputError
-from courseplan.stages.weather import weather_from_settings, weather_from_table, window_steps
 from courseplan.io.forecast import read_forecast_csv
 from courseplan.settings import PlanInfo, PlanSettings, Window
+from courseplan.stages.weather import weather_from_settings, weather_from_table, window_steps
 
 
 def _st(start="09:30", end="13:30", date="2027-03-18", tz="Europe/Zurich"):

@@ -22,17 +22,12 @@ from hypothesis import settings as hsettings
 from hypothesis import strategies as st
 
 from courseplan import columns
+from courseplan.cautions import storage_cautions
 from courseplan.errors import InputError, SettingsError
-from courseplan.stages.logistics import (
-    CARRY_LIMIT_KG,
-    crew_bag_kg,
-    packages_for,
-    plan_logistics,
-    split_contiguous,
-    storage_cautions,
-    zone_bags,
-)
+from courseplan.pipeline import plan_logistics
 from courseplan.settings import PlanSettings
+from courseplan.stages.crews import CARRY_LIMIT_KG, crew_bag_kg, split_contiguous, zone_bags
+from courseplan.stages.logistics import packages_for
 
 
 def stand_in_agent(**kw):

@@ -12,6 +12,7 @@ import pytest
 from shapely.geometry import Point, box
 
 from courseplan.render import webmap as wm
+from courseplan.render.context import SUN_RAMP, _hex_rgb, context_from_raster
 
 pytestmark = pytest.mark.browser
 
@@ -42,7 +43,7 @@ def _page(tmp_path, **kw):
 
 
 def _blend(hex_colour: str, alpha: float, under: str) -> np.ndarray:
-    top, bottom = np.array(wm._hex_rgb(hex_colour), float), np.array(wm._hex_rgb(under), float)
+    top, bottom = np.array(_hex_rgb(hex_colour), float), np.array(_hex_rgb(under), float)
     return alpha * top + (1 - alpha) * bottom
 
 
@@ -90,9 +91,9 @@ def test_context_picture_is_drawn(tmp_path, chromium):
 
     sun = np.zeros((120, 120))
     sun[:, 60:] = 1.0
-    ctx = wm.context_from_raster(sun, Affine(5.0, 0, X0 - 75, 0, -5.0, Y0 + 525), UTM, kind="sun")
+    ctx = context_from_raster(sun, Affine(5.0, 0, X0 - 75, 0, -5.0, Y0 + 525), UTM, kind="sun")
     png = chromium.screenshot(_page(tmp_path, context=ctx), tmp_path / "ctx.png")
     img = np.asarray(Image.open(png).convert("RGB")).astype(int).reshape(-1, 3)
     # the shade colour of the sun ramp, over the map background, appears outside the zones
-    want = _blend(wm.SUN_RAMP[0][1], wm.CONTEXT_OPACITY, wm.MAP_BACKGROUND)
+    want = _blend(SUN_RAMP[0][1], wm.CONTEXT_OPACITY, wm.MAP_BACKGROUND)
     assert int((np.abs(img - want).max(axis=1) <= 5).sum()) > 1000

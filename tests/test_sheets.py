@@ -21,8 +21,8 @@ from pypdf import PdfReader
 from courseplan.cautions import cautions_for
 from courseplan.errors import OutputError
 from courseplan.io.outputs import write_crews_pdf, write_order_pdf
+from courseplan.pipeline import plan_logistics
 from courseplan.render.sheets import num
-from courseplan.stages.logistics import plan_logistics
 from courseplan.settings import PlanSettings
 
 AGENT = types.SimpleNamespace(name="NH4NO3", label="Ammonium nitrate (test)", formula="NH4NO3",

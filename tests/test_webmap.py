@@ -13,9 +13,11 @@ from affine import Affine
 from pyproj import Transformer
 from shapely.geometry import Point, Polygon, box
 
-from courseplan.render import webmap as wm
 from courseplan.errors import GeometryError, InputError, OutputError
 from courseplan.io.files import write_text_atomic
+from courseplan.render import webmap as wm
+from courseplan.render.context import SUN_RAMP, _hex_rgb, context_from_raster, hillshade
+from courseplan.render.layers import format_value, json_for_script, simplify_for_display, zone_popup_sections
 
 UTM = "EPSG:32632"
 X0, Y0 = 519_000.0, 5_155_000.0  # near 46.55° N, 9.25° E
@@ -107,7 +109,7 @@ def test_user_text_is_escaped():
 
 
 def test_json_for_script_has_no_markup_characters():
-    s = wm._json_for_script({"a": "</script><!-- & \u2028"})
+    s = json_for_script({"a": "</script><!-- & \u2028"})
     assert "<" not in s and ">" not in s and "&" not in s and "\u2028" not in s
     assert json.loads(s) == {"a": "</script><!-- & \u2028"}
 
@@ -132,8 +134,8 @@ def test_popups_show_every_column_with_units():
 
 
 def test_units_override():
-    rows = {k: v for _, sec in wm.zone_popup_sections({"dose_g_m2": 12.5, "extra": 2.0},
-                                                      {"dose_g_m2": "g m⁻²", "extra": "h"}) for k, v in sec}
+    rows = {k: v for _, sec in zone_popup_sections({"dose_g_m2": 12.5, "extra": 2.0},
+                                                    {"dose_g_m2": "g m⁻²", "extra": "h"}) for k, v in sec}
     assert rows == {"dose_g_m2": "12.5 g m⁻²", "extra": "2.0 h"}
 
 
@@ -217,7 +219,7 @@ def test_dose_colour_edges():
     ("treat", "", None, "treat"), ("", "", None, "—"),
 ])
 def test_format_value(value, unit, kind, text):
-    assert wm.format_value(value, unit, kind) == text
+    assert format_value(value, unit, kind) == text
 
 
 # --------------------------------------------------------------------------- size and simplification
@@ -270,7 +272,7 @@ def test_simplify_keeps_a_coverage_shared():
 
     a = Polygon([(0, 0), (10, 0), (10, 0.2), (10, 10), (0, 10)])
     b = Polygon([(10, 0), (20, 0), (20, 10), (10, 10), (10, 0.2)])
-    out = wm.simplify_for_display([a, b], 1.0)
+    out = simplify_for_display([a, b], 1.0)
     assert shapely.coverage_is_valid(out)
     assert out[0].union(out[1]).area == pytest.approx(200.0)
     assert len(out[0].exterior.coords) <= len(a.exterior.coords)
@@ -280,24 +282,24 @@ def test_simplify_keeps_a_coverage_shared():
 
 def test_hillshade_hand_values():
     flat = np.zeros((5, 5))
-    assert wm.hillshade(flat, 1, 1)[2, 2] == pytest.approx(math.sin(math.radians(45)))
+    assert hillshade(flat, 1, 1)[2, 2] == pytest.approx(math.sin(math.radians(45)))
     # a plane rising to the south-east faces the north-west light; its slope 45° → normal along the light
     x, y = np.meshgrid(np.arange(5.0), np.arange(5.0))  # y = row, grows southward
     g = 1 / math.sqrt(2)                                 # gradient 1 → 45° slope
     z = g * x + g * y                                    # rises east and south
-    assert wm.hillshade(z, 1, 1)[2, 2] == pytest.approx(1.0, abs=1e-9)
+    assert hillshade(z, 1, 1)[2, 2] == pytest.approx(1.0, abs=1e-9)
 
 
 def test_context_from_sun_raster_colours_and_bounds():
     vals = np.zeros((100, 200))
     vals[:, 100:] = 1.0
     t = Affine(4.0, 0, X0, 0, -4.0, Y0 + 400)
-    img = wm.context_from_raster(vals, t, UTM, kind="sun")
+    img = context_from_raster(vals, t, UTM, kind="sun")
     assert img.rgba.dtype == np.uint8 and img.rgba.shape[2] == 4
     h, w, _ = img.rgba.shape
     left, right = img.rgba[h // 2, w // 4], img.rgba[h // 2, 3 * w // 4]
-    assert tuple(left[:3]) == pytest.approx(wm._hex_rgb(wm.SUN_RAMP[0][1]), abs=2)
-    assert tuple(right[:3]) == pytest.approx(wm._hex_rgb(wm.SUN_RAMP[-1][1]), abs=2)
+    assert tuple(left[:3]) == pytest.approx(_hex_rgb(SUN_RAMP[0][1]), abs=2)
+    assert tuple(right[:3]) == pytest.approx(_hex_rgb(SUN_RAMP[-1][1]), abs=2)
     assert left[3] == right[3] == 255
     (s, wst), (n, e) = img.latlon_bounds()
     tr = Transformer.from_crs(UTM, "EPSG:4326", always_xy=True)
@@ -310,8 +312,8 @@ def test_context_from_sun_raster_colours_and_bounds():
 def test_context_terrain_nodata_transparent():
     z = np.linspace(1500, 1700, 120 * 80).reshape(120, 80)
     z[:40, :] = -9999.0
-    img = wm.context_from_raster(z, Affine(2.0, 0, X0, 0, -2.0, Y0 + 240), UTM, kind="terrain",
-                                 nodata=-9999.0)
+    img = context_from_raster(z, Affine(2.0, 0, X0, 0, -2.0, Y0 + 240), UTM, kind="terrain",
+                              nodata=-9999.0)
     h = img.rgba.shape[0]
     assert img.rgba[h // 8, img.rgba.shape[1] // 2, 3] == 0
     assert img.rgba[7 * h // 8, img.rgba.shape[1] // 2, 3] == 255
@@ -319,14 +321,14 @@ def test_context_terrain_nodata_transparent():
 
 def test_context_refuses_bad_input():
     with pytest.raises(InputError):
-        wm.context_from_raster(np.zeros((3, 3)), Affine.identity(), UTM, kind="photo")
+        context_from_raster(np.zeros((3, 3)), Affine.identity(), UTM, kind="photo")
     with pytest.raises(InputError):
-        wm.context_from_raster(np.full((3, 3), np.nan), Affine.identity(), UTM)
+        context_from_raster(np.full((3, 3), np.nan), Affine.identity(), UTM)
 
 
 def test_page_with_context_embeds_png():
-    img = wm.context_from_raster(np.random.default_rng(0).normal(size=(50, 50)),
-                                 Affine(10.0, 0, X0, 0, -10.0, Y0 + 500), UTM)
+    img = context_from_raster(np.random.default_rng(0).normal(size=(50, 50)),
+                              Affine(10.0, 0, X0, 0, -10.0, Y0 + 500), UTM)
     data = _data(_page(context=img))
     assert data["context"]["uri"].startswith("data:image/png;base64,")
     (s, w), (n, e) = data["context"]["bounds"]

@@ -8,16 +8,17 @@ import numpy as np
 import pytest
 import shapely
 from affine import Affine
-from hypothesis import HealthCheck, given, settings, strategies as st
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from pyproj import CRS
 from shapely.geometry import LineString, Polygon, box
 
 from courseplan.columns import ZONING
 from courseplan.errors import InputError, OverlapError
+from courseplan.geo.chainage import distance_along_course
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
 from courseplan.stages.zoning import ZoningInputs, zone_course
-from courseplan.geo.chainage import distance_along_course
 
 CRS32632 = CRS.from_epsg(32632)
 

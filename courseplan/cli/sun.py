@@ -12,9 +12,6 @@ import click
 
 from courseplan.cli.common import debug_option, guarded
 
-#: Work (cells × time steps) above which a progress bar is shown on a terminal.
-_PROGRESS_WORK = 20_000_000
-
 
 @click.command("sun")
 @click.argument("dem_path", type=click.Path(path_type=Path))
@@ -49,39 +46,18 @@ def _run(dem_path: Path, date: str, start: str, end: str, step_minutes: float, t
     from rich.console import Console
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
 
-    from courseplan import __version__
-    from courseplan.io.rasters import read_dem, write_sun_tiff
-    from courseplan.physics.solar import window_times
-    from courseplan.stages.sun import sun_from_dem
+    from courseplan.api import sun
 
     err = Console(stderr=True)
-    times, _, _, _ = window_times(date, start, end, timezone, step_minutes)  # validate before reading
-    dem = read_dem(dem_path)
-    n_cells = dem.values.size
-    show = err.is_terminal and n_cells * len(times) >= _PROGRESS_WORK
     with Progress(TextColumn("sun and shade"), BarColumn(), MofNCompleteColumn(), TextColumn("steps"),
-                  TimeRemainingColumn(), console=err, disable=not show, transient=True) as bar:
-        task = bar.add_task("steps", total=len(times))
+                  TimeRemainingColumn(), console=err, disable=not err.is_terminal, transient=True) as bar:
+        task = bar.add_task("steps", total=None)
 
         def tick(done: int, total: int) -> None:
             bar.update(task, completed=done, total=total)
 
-        grids = sun_from_dem(dem.values, dem.transform, dem.crs, date=date, start=start, end=end,
-                             timezone=timezone, step_minutes=step_minutes, progress=tick)
-    cs = grids.window
-    tags = {"date": date, "window_start": cs.start.isoformat(), "window_end": cs.end.isoformat(),
-            "timezone": timezone, "step_minutes": f"{cs.step_hours * 60:.6g}", "time_steps": cs.n_steps,
-            "site_lat_lon_alt": f"{cs.latitude:.6f} {cs.longitude:.6f} {cs.altitude_m:.1f}",
-            "grid_north_deg": f"{grids.grid_north_deg:.4f}", "method": grids.method,
-            "source_dem": str(dem_path), "software": f"courseplan {__version__}"}
-    path = write_sun_tiff(out, grids.sun_fraction, grids.irradiation_wh_m2, dem.transform, dem.crs,
-                          tags=tags, overwrite=overwrite)
-    import numpy as np
-
-    ok = np.isfinite(grids.sun_fraction)
-    mean_f = float(np.mean(grids.sun_fraction[ok])) if ok.any() else float("nan")
-    mean_e = float(np.mean(grids.irradiation_wh_m2[ok])) if ok.any() else float("nan")
-    n_rows, n_cols = dem.values.shape
-    click.echo(f"wrote {path}: {n_rows} × {n_cols} cells of {abs(dem.transform.a):.3g} m in {dem.crs.name}, "
-               f"{cs.n_steps} steps of {cs.step_hours * 60:.3g} min; mean sun fraction {mean_f:.2f}, "
-               f"mean irradiation {mean_e:,.0f} Wh/m²")
+        r = sun(dem_path, out, date=date, start=start, end=end, step_minutes=step_minutes,
+                timezone=timezone, overwrite=overwrite, progress=tick)
+    click.echo(f"wrote {r['path']}: {r['rows']} × {r['cols']} cells of {r['cell_m']:.3g} m in {r['crs']}, "
+               f"{r['steps']} steps of {r['step_min']:.3g} min; mean sun fraction {r['mean_sun_fraction']:.2f}, "
+               f"mean irradiation {r['mean_irradiation_wh_m2']:,.0f} Wh/m²")

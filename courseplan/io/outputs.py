@@ -20,6 +20,7 @@ import pandas as pd
 
 from courseplan import __version__
 from courseplan.columns import ALL as ALL_COLUMNS
+from courseplan.columns import NO_UNIT, unit
 from courseplan.errors import OutputError
 from courseplan.io.files import refuse_existing, write_bytes_atomic, write_text_atomic
 
@@ -64,7 +65,7 @@ def summary_dict(result) -> dict[str, Any]:
         "crews": log.get("crews"),
         "weather": result.weather.describe(),
         "sources": result.sources,
-        "units": {c.name: c.unit for c in ALL_COLUMNS if c.unit},
+        "units": {c.name: c.unit for c in ALL_COLUMNS if c.unit != NO_UNIT},
         "notes": list(result.notes),
         "cautions": list(result.cautions),
         "settings": result.settings.to_dict(),
@@ -117,7 +118,8 @@ def write_gpkg(path: Path, result) -> None:
 def write_map(path: Path, result) -> None:
     """Write the offline map page."""
     from courseplan.columns import ALL
-    from courseplan.render.webmap import context_from_raster, render_map_html
+    from courseplan.render.context import context_from_raster
+    from courseplan.render.webmap import render_map_html
 
     ctx = None
     if result.context is not None:
@@ -130,7 +132,7 @@ def write_map(path: Path, result) -> None:
                            agent_label=result.agent.label, cautions=list(result.cautions),
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
-                           units={c.name: c.unit for c in ALL})
+                           units={c.name: unit(c.name) for c in ALL})
     write_text_atomic(path, html, what="map")
 
 

@@ -46,7 +46,6 @@ import numpy as np
 from courseplan.constants import (
     CP_AIR,
     EPSILON_VAPOUR,
-    L_FUSION,
     L_VAPOUR_0C,
     P_CRIT_PA,
     P_TRIPLE_PA,
@@ -243,8 +242,3 @@ def hock_melt_kg_m2(air_temp_c, hours, potential_radiation_w_m2=0.0, melt_factor
     t = np.maximum(np.asarray(air_temp_c, dtype=float), 0.0)
     return _out((melt_factor + radiation_coeff * np.asarray(potential_radiation_w_m2, dtype=float)) * t
                 * np.asarray(hours, dtype=float))
-
-
-def melt_equivalent_kg_m2(energy_j_m2):
-    """Ice melted by an energy [kg/m²] (E / L_f)."""
-    return _out(np.asarray(energy_j_m2, dtype=float) / L_FUSION)

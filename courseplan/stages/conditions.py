@@ -177,3 +177,18 @@ def assign_snow(zones, observations, settings: PlanSettings, *, window_start: pd
     z["obs_stale"] = stale
     z["lwc_from_class"] = from_class
     return z
+
+
+def observation_exposure(observations, exposure_grid, labels):
+    """The exposure class of each observation, sampled on the zoning's exposure grid.
+
+    Returns the observations with an ``exposure_class`` column added and that column as an array
+    (None where an observation lies off the grid), or ``(observations, None)`` without observations.
+    """
+    if observations is None or not len(observations) or exposure_grid is None:
+        return observations, None
+    idx = exposure_grid.sample(observations.geometry.x.to_numpy(), observations.geometry.y.to_numpy())
+    exp = np.array([labels[int(i)] if np.isfinite(i) and i >= 0 else None for i in idx], dtype=object)
+    obs = observations.copy()
+    obs["exposure_class"] = exp
+    return obs, exp

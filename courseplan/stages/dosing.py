@@ -16,6 +16,8 @@ passes and pass times refer to the zone's nominal state and the P50 dose.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
 import pandas as pd
 
@@ -34,7 +36,9 @@ from courseplan.physics.dose import (
     verdicts,
 )
 from courseplan.physics.snow import WETNESS_CLASSES, class_range_text
-from courseplan.stages.weather import Weather
+
+if TYPE_CHECKING:  # the weather stage's record, for annotations only
+    from courseplan.stages.weather import Weather
 
 __all__ = ["apply_dosing", "zone_energy_j_m2"]
 

@@ -14,18 +14,26 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from courseplan.errors import InputError
+from courseplan.errors import InputError, SettingsError
 from courseplan.geo.crs import require_metric
-from courseplan.physics.solar import ClearSkyWindow, clear_sky_window, sky_view_isotropic
+from courseplan.geo.raster import resample_to
+from courseplan.grid import Grid
+from courseplan.physics.solar import (
+    ClearSkyWindow,
+    clear_sky_window,
+    irradiation_on_slope_wh_m2,
+    sky_view_isotropic,
+)
 from courseplan.physics.terrain import (
     ShadowCaster,
     horn_gradient,
     normal_from_gradient,
     slope_aspect_from_gradient,
+    slope_aspect_horn,
     sun_vector,
 )
 
-__all__ = ["SunGrids", "sun_from_dem", "METHOD"]
+__all__ = ["SunGrids", "sun_from_dem", "METHOD", "PlanSun", "plan_sun", "terrain_on", "zone_irradiation"]
 
 #: Short method statement written into the sun GeoTIFF's tags.
 METHOD = ("NREL SPA solar position (pvlib); Ineichen-Perez clear sky with pvlib Linke turbidity; "
@@ -206,3 +214,120 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
                                             for a in (sun_fraction, irr, slope, aspect))
     return SunGrids(sun_fraction=sun_fraction, irradiation_wh_m2=irr, slope_deg=slope, aspect_deg=aspect,
                     window=cs, grid_north_deg=grid_north, transform=transform, crs=crs)
+
+
+# ---------------------------------------------------------------- sun for a plan
+
+DEFAULT_SITE_ALTITUDE_M = 1500.0
+"""Altitude assumed for the clear sky when no DEM is given [m] (a typical alpine race venue; practice)."""
+
+SUN_STEP_MIN = 15.0
+"""Longest time step of the plan's clear-sky window and of the sun computed from a DEM [min]."""
+
+
+@dataclass(frozen=True)
+class PlanSun:
+    """The sun inputs of a plan, on the working grid.
+
+    Attributes
+    ----------
+    sun
+        Sun/shade grid the zones are classed on (the raster given, or computed from the DEM).
+    encoding
+        What ``sun`` holds (``fraction``, ``percent`` or ``wh_m2``).
+    slope, aspect, elevation
+        DEM-derived grids on ``sun``'s grid, or None without a DEM.
+    clear_sky
+        Clear-sky window at the course (:class:`courseplan.physics.solar.ClearSkyWindow`).
+    notes, sources
+        What the user should know, and where each value came from.
+    """
+
+    sun: Grid
+    encoding: str
+    slope: Grid | None
+    aspect: Grid | None
+    elevation: Grid | None
+    clear_sky: ClearSkyWindow
+    notes: tuple[str, ...]
+    sources: dict
+
+    @property
+    def window_start(self):
+        """Start of the hold window (tz-aware), taken from the clear-sky window itself."""
+        return self.clear_sky.start
+
+
+def terrain_on(grid: Grid, dem: Grid) -> tuple[Grid, Grid, Grid]:
+    """Slope, aspect (Horn 1981, on the DEM's own cells) and elevation resampled onto *grid*."""
+    dx, dy = dem.cell_size
+    slope, aspect = slope_aspect_horn(dem.values, dx, dy)
+    s = resample_to(Grid(slope.astype(np.float32), dem.transform, dem.crs, "slope"), grid)
+    # aspect is circular: resample its sine and cosine
+    a_rad = np.radians(aspect.astype(np.float64))
+    sa = resample_to(Grid(np.sin(a_rad).astype(np.float32), dem.transform, dem.crs), grid).values
+    ca = resample_to(Grid(np.cos(a_rad).astype(np.float32), dem.transform, dem.crs), grid).values
+    a = Grid((np.degrees(np.arctan2(sa, ca)) % 360.0).astype(np.float32), grid.transform, grid.crs, "aspect")
+    e = resample_to(dem, grid)
+    return s, a, e
+
+
+def site_altitude_m(dem: Grid | None) -> tuple[float, str | None]:
+    """Median DEM height as the site altitude [m], or the default with a note."""
+    if dem is not None:
+        vals = dem.values[np.isfinite(dem.values)]
+        if vals.size:
+            return float(np.median(vals)), None
+    return DEFAULT_SITE_ALTITUDE_M, (f"no DEM: clear-sky irradiance computed for an assumed altitude of "
+                                     f"{DEFAULT_SITE_ALTITUDE_M:.0f} m and a flat course")
+
+
+def plan_sun(*, lon: float, lat: float, date: str, start: str, end: str, timezone: str, sun: Grid | None,
+             encoding: str, dem: Grid | None, crs, sources: dict) -> PlanSun:
+    """Sun inputs of a plan: the clear-sky window at the course and the sun/shade grid.
+
+    Without a sun raster the sun share is computed from the DEM (:func:`sun_from_dem`); with a DEM,
+    slope, aspect and elevation are resampled onto the sun grid (:func:`terrain_on`).
+    """
+    notes = []
+    srcs = dict(sources)
+    altitude, note = site_altitude_m(dem)
+    if note:
+        notes.append(note)
+    cs = clear_sky_window(lat, lon, altitude, date, start, end, timezone, SUN_STEP_MIN)
+    if sun is None:
+        if dem is None:
+            raise SettingsError("neither a sun raster nor a DEM is given", where="[inputs]",
+                                fix="give --sun SUN.tif or --dem DEM.tif")
+        grids = sun_from_dem(dem.values, dem.transform, crs, date=date, start=start, end=end,
+                             timezone=timezone, step_minutes=SUN_STEP_MIN)
+        sun = Grid(np.asarray(grids.sun_fraction, dtype=np.float32), dem.transform, crs,
+                   f"sun share computed from the DEM for {date} {start}–{end}")
+        encoding = "fraction"
+        srcs["sun"] = sun.source
+    slope = aspect = elev = None
+    if dem is not None:
+        slope, aspect, elev = terrain_on(sun, dem)
+    return PlanSun(sun=sun, encoding=encoding, slope=slope, aspect=aspect, elevation=elev, clear_sky=cs,
+                   notes=tuple(notes), sources=srcs)
+
+
+def zone_irradiation(zones, ps: PlanSun):
+    """Add ``irradiation_wh_m2`` (the ``sun`` stage's column) to the zones table.
+
+    The raster's own irradiation where it holds Wh/m²; otherwise the clear sky on each zone's slope
+    and aspect with the beam scaled by the zone's sun share
+    (:func:`courseplan.physics.solar.irradiation_on_slope_wh_m2`).
+    """
+    out = zones.copy()
+    sources = dict(ps.sources)
+    if ps.encoding == "wh_m2":
+        out["irradiation_wh_m2"] = out["raster_irradiation_wh_m2"].to_numpy(float)
+        sources["irradiation"] = "sun/shade raster (Wh/m² over the window)"
+    else:
+        asp = np.nan_to_num(out["aspect_deg"].to_numpy(float), nan=180.0)
+        out["irradiation_wh_m2"] = irradiation_on_slope_wh_m2(
+            ps.clear_sky, out["slope_deg"].to_numpy(float), asp, out["sun_fraction"].to_numpy(float))
+        sources["irradiation"] = ("clear-sky (pvlib Ineichen–Perez) on each zone's slope, beam scaled by the "
+                                  "zone's sun share")
+    return out, sources

@@ -27,7 +27,7 @@ import numpy as np
 import shapely
 from shapely.geometry.base import BaseGeometry
 
-from courseplan.columns import ZONING
+from courseplan.columns import check_stage
 from courseplan.errors import InputError, OverlapError
 from courseplan.geo.chainage import cell_xy, distance_of_cells
 from courseplan.geo.geometry import geometry_from_geojson
@@ -299,7 +299,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
 
     cols_out: dict[str, list] = {c: [] for c in (
         "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
-        "irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2", "area_m2")}
+        "raster_irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2", "area_m2")}
     geoms = []
     for z in merged:
         regs = np.array(z["regions"])
@@ -327,7 +327,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 ("section", section), ("section_index", int(sc)),
                 ("sun_fraction", sun_mean if inp.encoding == "fraction" else
                  sun_mean / 100.0 if inp.encoding == "percent" else float("nan")),
-                ("irradiation_wh_m2", sun_mean if inp.encoding == "wh_m2" else float("nan")),
+                ("raster_irradiation_wh_m2", sun_mean if inp.encoding == "wh_m2" else float("nan")),
                 ("slope_deg", float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum)),
                 ("aspect_deg", aspect_mean),
                 ("distance_from_start_m", float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum)),
@@ -343,8 +343,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
     exp_grid[touch] = exp_t
     exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
-    missing = [c.name for c in ZONING if c.name not in table]
-    assert not missing, missing  # internal contract; tests check it too
+    check_stage("zoning", (), table)
     return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=grid.crs,
                         start_xy=start_xy, finish_xy=finish_xy, exposure_breaks=tuple(breaks),
                         uncovered_share=uncovered, notes=tuple(notes), exposure_grid=exposure_grid)
