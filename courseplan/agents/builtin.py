@@ -15,7 +15,6 @@ from courseplan.agents.record import Agent
 _N, _CL = 14.007, 35.453
 
 
-
 # ---- helpers for typing in rows ----------------------------------------------------------------------
 def _molal(rows: list[tuple[float, float]], molar_mass_g_mol: float) -> tuple[tuple[float, float], ...]:
     """Convert ``(molality [mol/kg], depression [K])`` rows to ``(mass fraction, T_f [°C])``."""
@@ -26,28 +25,22 @@ def _molal(rows: list[tuple[float, float]], molar_mass_g_mol: float) -> tuple[tu
     return tuple(out)
 
 
-
 def _pct(rows: list[tuple[float, float]]) -> tuple[tuple[float, float], ...]:
     return tuple((p / 100.0, t) for p, t in rows)
-
 
 
 _CRC_F = ("CRC Handbook 'Freezing point lowering by electrolytes in aqueous solution' "
           "(after Smithsonian Physical Tables, 9th ed., 1956)")
 
 
-
 _CRC_H = "CRC Handbook 'Enthalpy of solution of electrolytes' (after Parker 1965, NSRDS-NBS 2)"
-
 
 
 _MEL = "CoolProp 8.0 fit of Melinder (2010), IIR, evaluated once and typed in"
 
 
-
 # CRC 'Freezing point lowering by electrolytes' rows, molality [mol/kg] → ΔT [K] [published]
 _M_COLS = (0.05, 0.10, 0.25, 0.50, 0.75, 1.00, 1.50, 2.00, 2.50, 3.00)
-
 
 
 CRC_MOLALITY_ROWS: dict[str, tuple[tuple[float, float], ...]] = {
@@ -61,7 +54,6 @@ CRC_MOLALITY_ROWS: dict[str, tuple[tuple[float, float], ...]] = {
 """Rows of the CRC/Smithsonian molality table [published]; also the validation tests' reference."""
 
 
-
 # CRC 'Concentrative properties' NaCl, mass % → T_f [°C] [published]
 CRC_NACL_MASS_PCT_ROWS: tuple[tuple[float, float], ...] = (
     (0.5, -0.30), (1, -0.59), (2, -1.19), (3, -1.79), (4, -2.41), (5, -3.05), (6, -3.70), (7, -4.38),
@@ -69,22 +61,19 @@ CRC_NACL_MASS_PCT_ROWS: tuple[tuple[float, float], ...] = (
     (20, -16.46),
 )
 
-
-
-# Melinder (2010) ice liquidus as fitted in CoolProp 8.0, mass % → T_f [°C] [library]
-_MEL_NACL_HIGH = ((21, -17.744), (22, -19.096), (23, -20.515))
-
-
-
+# CRC 'Concentrative properties' NaCl near the eutectic, mass % → T_f [°C] [published]: 102nd ed. (2021)
+# rows as transcribed in github.com/amosonabike/CRC-Solution-Properties- (src/CRC Solution Properties.txt);
+# Lange's Handbook 15th ed. Table 5.13 'Freezing point of sodium chloride brines' agrees within 0.02 K
+# (-17.78, -19.19, -20.69; eutectic 23.3 % -21.1 °C).  Replaces the CoolProp/Melinder values
+# (-17.744, -19.096, -20.515), which run 0.04-0.16 K warm here.
+_CRC_NACL_HIGH = ((21, -17.78), (22, -19.18), (23, -20.67))
 _MEL_CACL2 = ((2, -0.917), (4, -1.847), (6, -2.932), (8, -4.251), (10, -5.842), (12, -7.715),
               (14, -9.869), (16, -12.315), (18, -15.086), (20, -18.260), (22, -21.973), (24, -26.439),
               (26, -31.966), (27, -35.254), (28, -38.975), (29, -43.201), (29.5, -45.529))
 
 
-
 _MEL_MGCL2 = ((1, -0.664), (2, -1.219), (4, -2.331), (6, -3.773), (8, -5.742), (10, -8.282),
               (12, -11.347), (14, -14.871), (16, -18.839), (18, -23.355), (20, -28.709), (21, -31.860))
-
 
 
 def _builtin() -> dict[str, Agent]:
@@ -96,7 +85,7 @@ def _builtin() -> dict[str, Agent]:
         eutectic_c=-21.12, eutectic_mass_fraction=0.2331, enthalpy_solution_kj_mol=3.88,
         purity=0.95, crystal_water_fraction=0.0, bulk_density_kg_m3=1200.0,
         bag_sizes_kg=(25.0,), big_bag_kg=1000.0, bags_per_pallet=40, oxidiser=False,
-        curve_approximate=False, curve=_pct(list(CRC_NACL_MASS_PCT_ROWS) + list(_MEL_NACL_HIGH)),
+        curve_approximate=False, curve=_pct(list(CRC_NACL_MASS_PCT_ROWS) + list(_CRC_NACL_HIGH)),
         aliases=("rock salt", "road salt", "salt", "sodium chloride", "nacl", "halite"),
         note="cheap, slow to act on very wet snow; chloride load",
         sources={
@@ -104,8 +93,10 @@ def _builtin() -> dict[str, Agent]:
             "eutectic_c": "published: Salt Institute property page (-21.12 °C, 23.31 %)",
             "eutectic_mass_fraction": "published: Salt Institute property page",
             "enthalpy_solution_kj_mol": f"published: {_CRC_H}",
-            "curve": "published: CRC 'Concentrative properties of aqueous solutions' rows 0.5–20 %; "
-                     f"library: 21–23 % from {_MEL} (INCOMP::MNA)",
+            "curve": "published: CRC 'Concentrative properties of aqueous solutions' rows 0.5–20 % "
+                     "(design notes) and 21–23 % (102nd ed., read in a public transcription, "
+                     "github.com/amosonabike/CRC-Solution-Properties-; Lange's Handbook 15th ed. "
+                     "Table 5.13 agrees within 0.02 K); eutectic point from the Salt Institute",
             "purity": "practice: rock/road salt is sold at about 95 % NaCl or more",
             "crystal_water_fraction": "practice: dry salt assumed",
             "bulk_density_kg_m3": "memory: rock/road salt loose 1100–1300 kg/m³",
@@ -303,9 +294,7 @@ def _builtin() -> dict[str, Agent]:
     return out
 
 
-
 _BUILTIN = _builtin()
-
 
 
 def builtin_agents() -> dict[str, Agent]:
