@@ -77,23 +77,21 @@ DOSING = _cols(
     "dosing",
     ("verdict", "", "what to do in this zone", "str"),
     ("advice", "", "one line of advice for the verdict", "str"),
-    ("energy_in_mj_m2", "MJ/m²", "net energy income of the surface over the hold window", "float"),
-    ("water_to_remove_kg_m2", "kg/m²", "free water to refreeze plus melt to offset", "float"),
-    ("dose_g_m2", "g/m²", "product dose, P50", "float"),
-    ("dose_p90_g_m2", "g/m²", "product dose, P90", "float"),
-    ("passes", "", "number of passes", "int"),
-    ("pass_temp_c", "°C", "closed-layer temperature after one pass in the mixing layer", "float"),
-    ("product_kg", "kg", "product mass, P50 (dose × surface area)", "float"),
-    ("product_p90_kg", "kg", "product mass, P90", "float"),
+    ("energy_in_mj_m2", "MJ/m²", "net energy that arrives while pass 1 acts (peak over τ), nominal", "float"),
+    ("dose_g_m2", "g/m²", "product over the race day, all passes, P50", "float"),
+    ("dose_p90_g_m2", "g/m²", "product over the race day, all passes, P90", "float"),
+    ("passes", "", "passes on the race day (see the passes table)", "int"),
+    ("max_pass_g_m2", "g/m²", "the largest single pass, P50", "float"),
+    ("pass_times", "HH:MM", "when each pass is spread, local time, '; '-separated", "str"),
+    ("hard_until", "HH:MM", "when the last pass stops holding, local time ('end of day': past the last "
+                            "run)", "str"),
+    ("soft_min", "min", "minutes the zone is soft during its worst run (0: held through every run)",
+     "float"),
+    ("soft_in_run", "", "the run in which the zone is soft longest (0: none)", "int"),
+    ("product_kg", "kg", "product mass over the race day, P50 (dose × surface area)", "float"),
+    ("product_p90_kg", "kg", "product mass over the race day, P90", "float"),
     ("nitrogen_kg", "kg", "nitrogen put on the snow, P50", "float"),
     ("chloride_kg", "kg", "chloride put on the snow, P50", "float"),
-    ("energy_in_p90_mj_m2", "MJ/m²", "net energy income over the hold window, P90", "float"),
-    ("dose_per_pass_g_m2", "g/m²", "product per pass (P50 dose / passes)", "float"),
-    ("max_pass_g_m2", "g/m²", "largest product dose one pass may carry before the mixing layer turns "
-                              "to slush (inf: no limit)", "float"),
-    ("pass_times", "HH:MM", "when to spread each pass, local time, '; '-separated", "str"),
-    ("refreeze_ratio_kg_kg", "kg/kg", "free water removed per kg of salt at the brine exit temperature",
-     "float"),
     ("brine_exit_temp_c", "°C", "brine exit temperature T_b used", "float"),
     ("refreeze_share", "", "share of the free water that must refreeze (k_f) used", "float"),
     ("lwc_sampled", "", "liquid water content sampled inside its wetness class for P50/P90", "bool"),
@@ -101,16 +99,42 @@ DOSING = _cols(
     ("dose_inputs", "", "the inputs the dose used and where each came from", "str"),
 )
 
+CREWS = _cols(
+    "crews",
+    ("crew", "", "crew number (its zones are one stretch of the course)", "int"),
+    ("work_order", "", "place in the crew's order of work (shaded zones first, sunny last)", "int"),
+    ("spread_min", "min", "minutes one pass takes at the spreading rate", "float"),
+)
+
 LOGISTICS = _cols(
     "logistics",
-    ("crew", "", "crew number (0: not treated)", "int"),
     ("bags", "", "bags for this zone (whole bags, P90 with margin)", "int"),
     ("work_min", "min", "spreading and carrying time", "float"),
     ("handfuls_m2", "1/m²", "handfuls per square metre for hand spreading (estimate)", "float"),
 )
 
+PASSES = _cols(
+    "passes",
+    ("zone_id", "", "zone the pass is for", "int"),
+    ("pass_no", "", "pass number in the zone, 1 = before inspection", "int"),
+    ("slot", "", "when in the race day: before inspection, or the break before run k", "str"),
+    ("spread_at", "ISO 8601", "when the crew has spread the pass, local time with offset", "str"),
+    ("dose_g_m2", "g/m²", "product dose of this pass, P50", "float"),
+    ("dose_p90_g_m2", "g/m²", "product dose of this pass, P90", "float"),
+    ("product_kg", "kg", "product mass of this pass, P50", "float"),
+    ("product_p90_kg", "kg", "product mass of this pass, P90", "float"),
+    ("sub_passes", "", "spreads this pass is split into under the slush limit", "int"),
+    ("hard_from", "ISO 8601", "hard from (spread time + τ), local time with offset", "str"),
+    ("hard_until", "ISO 8601", "hard until the sun has re-supplied the hardening reserve (empty: past "
+                               "the last run)", "str"),
+    ("held_to_day_end", "", "the pass holds past the end of the last run", "bool"),
+    ("layer_temp_c", "°C", "closed-layer temperature of the pass in the hardening depth", "float"),
+    ("layer_temp_off", "", "that temperature is more than 2 K from T_b", "bool"),
+)
+"""Columns of the ``passes`` table (one row per zone and pass)."""
+
 CREW_LAYER = _cols(
-    "logistics",
+    "crews",
     ("crew", "", "crew number, 1 … n in course order", "int"),
     ("label", "", "crew name on the sheets", "str"),
     ("zone_ids", "", "the crew's zones in walking (course) order, comma-separated", "str"),
@@ -134,7 +158,7 @@ CREW_LAYER = _cols(
 )
 """Columns of the ``crews`` layer (one row per crew; not part of the zones table)."""
 
-ALL: list[Column] = ZONING + SUN + CONDITIONS + DOSING + LOGISTICS
+ALL: list[Column] = ZONING + SUN + CONDITIONS + CREWS + DOSING + LOGISTICS
 BY_NAME: dict[str, Column] = {c.name: c for c in ALL}
 
 

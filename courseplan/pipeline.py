@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 from pyproj import CRS, Transformer
 from shapely.geometry.base import BaseGeometry
@@ -22,8 +23,11 @@ from courseplan.grid import Grid
 from courseplan.settings import PlanSettings
 
 PRACTICE_HIGH_G_M2 = 150.0
-"""Upper end of reported alpine doses per pass, 50–150 g/m² [from memory, domain-data §7]: a
-plausibility flag only, never a limit on the computed dose."""
+"""A single pass above this is beyond every field figure (field-evidence.md §0: about 5–60 g/m² per
+treatment; 150 g/m² per pass is unsupported): a plausibility flag only, never a limit on the dose."""
+
+DAY_STEP_MIN = 10.0
+"""Longest step of the race day's energy series [min] (τ is 15–30 min, so a step must be shorter)."""
 
 
 @dataclass(frozen=True)
@@ -88,6 +92,8 @@ class PlanResult:
     cautions: tuple[str, ...]
     context: Grid | None
     sources: dict
+    passes: Any = None  # pandas.DataFrame, one row per zone and pass (courseplan.columns.PASSES)
+    schedule: Any = None  # courseplan.schedule.RaceSchedule
 
     def totals(self) -> dict[str, Any]:
         """Plan totals (all zones): areas, masses, loads."""
@@ -134,10 +140,12 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     import geopandas as gpd
 
     from courseplan.agents import get_agent
+    from courseplan.schedule import pass_slots, plan_schedule
     from courseplan.stages.conditions import assign_snow, observation_exposure
-    from courseplan.stages.dosing import apply_dosing
+    from courseplan.stages.crews import assign_crews, time_pass
+    from courseplan.stages.dosing import dose_pass, finish_dosing, prepare_dosing
     from courseplan.stages.sun import plan_sun, zone_irradiation
-    from courseplan.stages.weather import weather_from_settings, weather_from_table
+    from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
     from courseplan.stages.zoning import ZoningInputs, zone_course
 
     def step(name: str) -> None:
@@ -147,21 +155,27 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     if settings.plan.date is None:
         raise SettingsError("no race date", where="[plan] date", fix='set it, e.g. date = "2027-03-14"')
     agent = get_agent(settings.plan.agent, inputs.catalogue)
-    pl, win = settings.plan, settings.window
+    pl = settings.plan
     lon, lat = _lonlat(inputs.crs, inputs.course.centroid.x, inputs.course.centroid.y)
 
+    schedule = plan_schedule(settings)
+    ds = settings.dosing
+    day0 = schedule.inspection_from - pd.Timedelta(hours=ds.lead_h)
+    day1 = schedule.last_end
+    start, end = day0.strftime("%H:%M"), day1.strftime("%H:%M")
+
     step("sun")
-    ps = plan_sun(lon=lon, lat=lat, date=pl.date, start=win.start, end=win.end, timezone=pl.timezone,
+    ps = plan_sun(lon=lon, lat=lat, date=pl.date, start=start, end=end, timezone=pl.timezone,
                   sun=inputs.sun, encoding=settings.inputs.sun_encoding, dem=inputs.dem, crs=inputs.crs,
-                  sources=inputs.sources)
-    notes = list(inputs.notes) + list(ps.notes)
+                  sources=inputs.sources, step_min=DAY_STEP_MIN)
+    notes = list(inputs.notes) + list(schedule.notes) + list(ps.notes)
 
     step("zoning")
     zres = zone_course(ZoningInputs(course=inputs.course, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
                                     aspect_deg=ps.aspect, elevation_m=ps.elevation,
                                     start_xy=_start_in_work(settings, inputs),
                                     centreline=inputs.centreline, markers=inputs.markers),
-                       settings.zoning, window_hours=win.hours,
+                       settings.zoning, window_hours=(day1 - day0).total_seconds() / 3600.0,
                        max_uncovered_pct=settings.inputs.max_uncovered_pct)
     notes += list(zres.notes)
     check_stage("zoning", (), zres.zones.columns)
@@ -171,30 +185,53 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     obs, obs_exp = observation_exposure(inputs.observations, zres.exposure_grid, settings.zoning.exposure_labels)
     zones = _staged("conditions", zones, lambda z: assign_snow(z, obs, settings, window_start=ps.window_start,
                                                               obs_exposure=obs_exp))
+    zones = _staged("crews", zones, lambda z: assign_crews(z, settings))
 
     step("dosing")
+    cs = ps.clear_sky
+    steps = uniform_steps(cs.start, cs.end, cs.n_steps)
     if inputs.forecast is not None:
-        weather = weather_from_table(inputs.forecast, settings, ps.clear_sky,
+        weather = weather_from_table(inputs.forecast, settings, cs, steps=steps,
                                      source=f"forecast file {sources.get('forecast', '')}".strip())
     else:
-        weather = weather_from_settings(settings, ps.clear_sky)
-    zones = _staged("dosing", zones, lambda z: apply_dosing(z, settings, agent, weather))
-    high = zones["dose_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
-    if high.any() and not settings.dosing.calibrated:
-        notes.append(f"{int(high.sum())} zone(s) get more than {PRACTICE_HIGH_G_M2:.0f} g/m², above the doses the "
-                     "trade reports; the model is not calibrated for this hill yet: treat a test patch, fit "
-                     "the model to it ([dosing] calibrated) and check the inputs before ordering")
+        weather = weather_from_settings(settings, cs, steps=steps)
+    ctx = prepare_dosing(zones, settings, agent, weather)
+    results, late_notes = [], []
+    hold = np.full(len(zones), -np.inf)
+    can = ctx.blocked == ""
+    has_pass = can
+    for slot in pass_slots(schedule, ds.tau_min):
+        need = can if slot.number == 1 else can & (hold < ctx.seconds([slot.must_hold_until])[0]) & has_pass
+        if not need.any():
+            continue
+        at, late = time_pass(zones, need, deadline=slot.deadline, opens=slot.opens, tau_min=ds.tau_min)
+        res = dose_pass(ctx, ctx.seconds(at))
+        if slot.number == 1:
+            has_pass = res.dose_g_m2 > 0
+        hold = np.where(np.isfinite(res.spread_at_s) & (res.dose_g_m2 > 0), res.hard_until_s, hold)
+        results.append((slot, res))
+        if late.any():
+            late_notes.append(f"{int(late.sum())} zone(s) are spread later than τ before {slot.label} "
+                              f"({slot.deadline:%H:%M}): add crews or start earlier")
+    zones, passes, dose_notes = finish_dosing(ctx, results, schedule)
+    check_stage("dosing", ctx.zones.columns, zones.columns)
+    notes += late_notes + dose_notes
+    high = zones["max_pass_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
+    if high.any():
+        notes.append(f"{int(high.sum())} zone(s) get a pass above {PRACTICE_HIGH_G_M2:.0f} g/m², beyond anything "
+                     "the field evidence reports for one pass: check the inputs and treat a test patch first")
 
     step("logistics")
     log = _staged("logistics", gpd.GeoDataFrame(zones, geometry="geometry", crs=inputs.crs),
-                  lambda z: plan_logistics(z, settings, agent))
+                  lambda z: plan_logistics(z, settings, agent, passes=passes,
+                                           race_start=schedule.first_start.strftime("%H:%M")))
     course = gpd.GeoDataFrame({"name": [inputs.course_name]}, geometry=[inputs.course], crs=inputs.crs)
     cautions = tuple(cautions_for(agent.name, agent.nitrogen_fraction, nitrate=bool(agent.oxidiser)))
     context = inputs.dem if inputs.dem is not None else ps.sun
     return PlanResult(settings=settings, agent=agent, zones=log.zones, course=course, observations=obs,
                       logistics=log, weather=weather, start_xy=zres.start_xy, finish_xy=zres.finish_xy,
                       crs=inputs.crs, notes=tuple(notes) + tuple(log.notes), cautions=cautions,
-                      context=context, sources=sources)
+                      context=context, sources=sources, passes=passes, schedule=schedule)
 
 
 def _staged(stage: str, zones, run):
@@ -217,12 +254,12 @@ def _start_in_work(settings: PlanSettings, inputs: LoadedInputs) -> tuple[float,
     return float(x), float(y)
 
 
-def plan_logistics(zones, settings: PlanSettings, agent):
-    """The crews stage then the order: :class:`~courseplan.stages.logistics.LogisticsResult`."""
+def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start=None):
+    """The crews' bags and depots, then the order: :class:`~courseplan.stages.logistics.LogisticsResult`."""
     from courseplan.stages.crews import plan_crews
     from courseplan.stages.logistics import LogisticsResult, plan_order
 
-    cp = plan_crews(zones, settings, agent)
+    cp = plan_crews(zones, settings, agent, pass_table=passes, race_start=race_start)
     order = plan_order(cp.zones, settings, agent, cp.bag_kg)
     return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
                            wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes)

@@ -332,3 +332,29 @@ def pass_slots(schedule: RaceSchedule, tau_min: float) -> tuple[PassSlot, ...]:
         slots.append(PassSlot(k, f"break before run {k}", k, opens, deadline, runs[k - 1].end,
                               deadline - opens < pd.Timedelta(minutes=tau)))
     return tuple(slots)
+
+
+LEGACY_INSPECTION_MIN = 30
+"""Without a ``[race]`` table, ``[window]`` is read as one run with inspection the 30 min before it."""
+
+
+def plan_schedule(settings) -> RaceSchedule:
+    """The plan's schedule: ``[race]``, or — for older plan files — ``[window]`` read as one run.
+
+    Without ``[race]``, the window's start and end become one run's start and end, inspection the
+    :data:`LEGACY_INSPECTION_MIN` minutes before it, and a note says so (passes between runs need
+    ``[race]``).
+    """
+    race = settings.race
+    pl = settings.plan
+    if race.inspection is None and race.runs is None:
+        win = settings.window
+        t0, _ = _parse_time(win.start, _race_date(pl.date), _zone(pl.timezone), "[window] start", [])
+        insp = t0 - pd.Timedelta(minutes=LEGACY_INSPECTION_MIN)
+        mapping = {"inspection": [insp.strftime("%H:%M"), win.start], "runs": [[win.start, win.end]]}
+        s = schedule_from_mapping(mapping, date=pl.date, timezone=pl.timezone, where="[window]")
+        note = (f"no [race] table: [window] {win.start}–{win.end} read as one run, inspection the "
+                f"{LEGACY_INSPECTION_MIN} min before; give [race] inspection and runs for passes between runs")
+        return RaceSchedule(s.date, s.timezone, s.inspection_from, s.inspection_to, s.runs, s.notes + (note,))
+    return schedule_from_mapping({k: v for k, v in (("inspection", race.inspection), ("runs", race.runs))
+                                  if v is not None}, date=pl.date, timezone=pl.timezone)

@@ -83,6 +83,15 @@ class Window:
 
 
 @dataclass(frozen=True)
+class Race:
+    """``[race]``: the race day's schedule (local times on ``[plan] date``; see courseplan.schedule)."""
+
+    inspection: list[Any] | None = _f(None, 'course inspection from, to, e.g. ["08:15", "09:00"]')
+    runs: list[Any] | None = _f(None, "each run's start and expected end, e.g. [['09:30', '10:45'], "
+                                      "['12:30', '13:45']]; 'YYYY-MM-DDTHH:MM' past midnight")
+
+
+@dataclass(frozen=True)
 class Zoning:
     """``[zoning]``: how the course is split into zones."""
 
@@ -142,6 +151,13 @@ class Dosing:
     slush_limit: float = _f(0.10, "largest share of the mixing layer's ice one pass may melt", lo=0.01,
                             hi=0.9)
     albedo: float = _f(0.6, "albedo of the wet snow surface", lo=0.1, hi=0.95)
+    albedo_spread: float = _f(0.1, "half-width of the uniform albedo range sampled for P50/P90 (old clean "
+                                   "wet snow 0.46–0.70 [from memory, domain-data §8])", lo=0.0, hi=0.4)
+    tau_min: float = _f(20.0, "time the salt acts in the layer before the brine drains (field: 15–20 min "
+                              "on alpine slopes in spring sun, 30 min rest, 45–60 min on cross-country "
+                              "tracks; field-evidence §2)", unit="min", lo=1.0, hi=180.0)
+    lead_h: float = _f(4.0, "how long before the inspection the plan's day starts (the crews' first "
+                            "pass fits in it)", unit="h", lo=0.5, hi=12.0)
     purity: float | None = _f(None, "product purity, overriding the catalogue", lo=0.05, hi=1.0)
     samples: int = _f(200, "samples for P50/P90", lo=1, hi=100000)
     seed: int = _f(20261202, "random seed of the sampling (same seed, same numbers)", lo=0)
@@ -200,6 +216,7 @@ class PlanSettings:
     plan: PlanInfo = field(default_factory=PlanInfo)
     inputs: Inputs = field(default_factory=Inputs)
     window: Window = field(default_factory=Window)
+    race: Race = field(default_factory=Race)
     zoning: Zoning = field(default_factory=Zoning)
     snow: Snow = field(default_factory=Snow)
     dosing: Dosing = field(default_factory=Dosing)

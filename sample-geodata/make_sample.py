@@ -359,11 +359,14 @@ def main(argv: list[str] | None = None) -> int:
     with open(out / "forecast.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")
         w.writerow(["time", "air_temp_c", "rh_pct", "wind_m_s", "cloud_fraction"])
-        for h in range(7, 16):
-            air = 0.5 + 7.0 * np.sin(np.pi * (h - 6) / 11.0) ** 1.3
-            rh = 82 - 30 * np.sin(np.pi * (h - 6) / 11.0)
-            wind = 1.2 + 0.25 * (h - 7)
-            cloud = [0.1, 0.1, 0.05, 0.05, 0.1, 0.15, 0.25, 0.35, 0.4][h - 7]
+        for h in range(4, 16):
+            if h < 7:  # the cold clear night before: crews salt the first pass in it
+                air, rh, wind, cloud = 1.8 - 1.1 * (7 - h), 85.0, 1.0, 0.10
+            else:
+                air = 0.5 + 7.0 * np.sin(np.pi * (h - 6) / 11.0) ** 1.3
+                rh = 82 - 30 * np.sin(np.pi * (h - 6) / 11.0)
+                wind = 1.2 + 0.25 * (h - 7)
+                cloud = [0.1, 0.1, 0.05, 0.05, 0.1, 0.15, 0.25, 0.35, 0.4][h - 7]
             w.writerow([f"{RACE_DAY}T{h:02d}:00{UTC_OFFSET}", f"{air:.1f}", f"{rh:.0f}", f"{wind:.1f}",
                         f"{cloud:.2f}"])
 
@@ -387,10 +390,10 @@ observations = "observations.csv"
 forecast = "forecast.csv"
 centreline = "centreline.geojson"
 
-[window]
-start = "{WINDOW[0]}"
-end = "{WINDOW[1]}"
-runs = 2
+[race]
+# race day of the invented demo: course inspection, then two runs of a giant slalom
+inspection = ["08:15", "09:00"]
+runs = [["09:30", "10:45"], ["12:30", "13:45"]]
 
 [zoning]
 min_zone_area_m2 = 400.0

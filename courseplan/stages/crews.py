@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from courseplan.errors import InputError, SettingsError
 from courseplan.settings import PlanSettings, minutes_of
@@ -130,7 +131,8 @@ class CrewPlan:
     notes: tuple[str, ...] = ()
 
 
-def plan_crews(zones: Any, settings: PlanSettings, agent: Any) -> CrewPlan:
+def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any = None,
+               race_start: str | None = None) -> CrewPlan:
     """Crew split, depots, bags per zone and timing for a dosed zones table.
 
     Parameters
@@ -160,7 +162,7 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any) -> CrewPlan:
     bag_kg = crew_bag_kg(settings, agent)
     margin = float(lg.margin_pct)
 
-    out = zones.copy()
+    out = zones.drop(columns=[c for c in ("crew",) if c in zones.columns]).copy()
     kg = out["product_kg"].to_numpy(dtype=float)
     kg90 = out["product_p90_kg"].to_numpy(dtype=float)
     if np.any(~np.isfinite(kg)) or np.any(~np.isfinite(kg90)):
@@ -184,10 +186,19 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any) -> CrewPlan:
     # split the treated zones, in course order, into runs
     order_idx = np.argsort(out["course_order"].to_numpy(), kind="stable")
     t_idx = order_idx[treated[order_idx]]
-    runs = split_contiguous(work[t_idx], lg.crews)
-    crew_col = np.zeros(len(out), dtype=int)
-    for c, (a, b) in enumerate(runs, start=1):
-        crew_col[t_idx[a:b]] = c
+    if "crew" in zones.columns:  # split before dosing (assign_crews): keep it, treated zones only
+        given = zones["crew"].to_numpy()
+        crew_col = np.where(treated, given, 0).astype(int)
+        labels = sorted(int(c) for c in set(crew_col[t_idx]))
+        runs = []
+        for c in labels:
+            pos = np.flatnonzero(crew_col[t_idx] == c)
+            runs.append((int(pos.min()), int(pos.max()) + 1))
+    else:
+        runs = split_contiguous(work[t_idx], lg.crews)
+        crew_col = np.zeros(len(out), dtype=int)
+        for c, (a, b) in enumerate(runs, start=1):
+            crew_col[t_idx[a:b]] = c
     out["crew"] = crew_col
 
     # timing
@@ -278,6 +289,11 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any) -> CrewPlan:
     second = crews["second_pass"].astype(object)
     crews["second_pass"] = second.where(second.notna(), None)  # None, not NaN, for one pass
 
+    if pass_table is not None:  # timing from the passes actually planned (dosing), not from a window
+        notes = [n for n in notes if not n.startswith("Crew ") and not n.startswith("The first start")]
+        _times_from_passes(crews, out, pass_table)
+        if race_start:
+            first_start = float(minutes_of(race_start, "[race] runs"))
     return CrewPlan(zones=out, crews=crews, bag_kg=bag_kg, first_start=hhmm(first_start),
                     wait_min=float(lg.wait_min), handful_g=float(lg.handful_g), notes=tuple(notes))
 
@@ -326,3 +342,94 @@ def zone_bags(p90_kg: np.ndarray, margin_pct: float, bag_kg: float) -> np.ndarra
     need = np.asarray(p90_kg, dtype=float) * (1.0 + margin_pct / 100.0) / bag_kg
     # a hair of tolerance so 50.000000001 kg in 25 kg bags stays 2 bags, not 3
     return np.ceil(np.maximum(need - 1e-9, 0.0)).astype(int)
+
+
+# ---------------------------------------------------------------- crews before dosing: who spreads where, when
+
+
+def assign_crews(zones: Any, settings: PlanSettings) -> Any:
+    """Split the zones among the crews and set each crew's order of work (the ``crews`` stage).
+
+    Zones are cut, in course order, into at most ``[logistics] crews`` contiguous runs of balanced
+    spreading time (:func:`split_contiguous`).  Inside a crew the shaded zones come first and the
+    sunny ones last (ascending sun share, then course order), so the zones the sun softens first are
+    salted last and hold longest into the run (dosing-model, "Timing from the race").
+
+    Adds ``crew``, ``work_order`` and ``spread_min`` (minutes one pass takes at
+    ``[logistics] spread_rate_m2_min``).
+    """
+    lg = settings.logistics
+    out = zones.copy()
+    area = out["area_m2"].to_numpy(dtype=float)
+    spread = area / lg.spread_rate_m2_min
+    order_idx = np.argsort(out["course_order"].to_numpy(), kind="stable")
+    runs = split_contiguous(spread[order_idx], lg.crews)
+    crew = np.zeros(len(out), dtype=np.int64)
+    work = np.zeros(len(out), dtype=np.int64)
+    sun = out["sun_fraction"].to_numpy(dtype=float) if "sun_fraction" in out else np.zeros(len(out))
+    sun = np.where(np.isfinite(sun), sun, out["raster_irradiation_wh_m2"].to_numpy(dtype=float)
+                   if "raster_irradiation_wh_m2" in out else 0.0)
+    for c, (a, b) in enumerate(runs, start=1):
+        idx = order_idx[a:b]
+        crew[idx] = c
+        key = np.lexsort((out["course_order"].to_numpy()[idx], np.nan_to_num(sun[idx])))
+        work[idx[key]] = np.arange(1, len(idx) + 1)
+    out["crew"] = crew
+    out["work_order"] = work
+    out["spread_min"] = spread
+    return out
+
+
+def time_pass(zones: Any, need: np.ndarray, *, deadline, opens, tau_min: float) -> tuple[Any, np.ndarray]:
+    """When each crew spreads the zones that need this pass, working back from the deadline.
+
+    Each crew walks its zones in ``work_order``; the last one is finished τ before the deadline (the
+    salt has acted by then), the others before it, one after the other.  When that would start
+    before the slot opens (the end of the previous run), the crew starts when it opens and the zones
+    finished later than τ before the deadline are late.
+
+    Returns
+    -------
+    tuple
+        (spread times as a tz-aware ``DatetimeIndex``, NaT where no pass; late flags).
+    """
+    n = len(zones)
+    need = np.asarray(need, dtype=bool)
+    crew = zones["crew"].to_numpy()
+    order = zones["work_order"].to_numpy()
+    mins = zones["spread_min"].to_numpy(dtype=float)
+    finish_by = deadline - pd.Timedelta(minutes=float(tau_min))
+    spread_at = pd.DatetimeIndex([pd.NaT] * n, tz=deadline.tz)
+    at = [pd.NaT] * n
+    late = np.zeros(n, dtype=bool)
+    for c in np.unique(crew[need]):
+        idx = np.flatnonzero(need & (crew == c))
+        idx = idx[np.argsort(order[idx], kind="stable")]
+        cum = np.cumsum(mins[idx])
+        start = finish_by - pd.Timedelta(minutes=float(cum[-1]))
+        if opens is not None and start < opens:
+            start = opens
+        for i, done in zip(idx, cum, strict=True):
+            t = start + pd.Timedelta(minutes=float(done))
+            at[i] = t
+            late[i] = t > finish_by + pd.Timedelta(seconds=1)
+    spread_at = pd.DatetimeIndex(at).tz_convert(deadline.tz) if any(pd.notna(x) for x in at) else spread_at
+    return spread_at, late
+
+
+def _times_from_passes(crews: Any, zones: Any, passes: Any) -> None:
+    """Fill the crews' start, done-by and second-pass times from the passes table (in place)."""
+    zc = dict(zip(zones["zone_id"].to_numpy(), zones["crew"].to_numpy(), strict=True))
+    spread = dict(zip(zones["zone_id"].to_numpy(), zones["spread_min"].to_numpy(), strict=True)) \
+        if "spread_min" in zones.columns else {}
+    p = passes.assign(crew=passes["zone_id"].map(zc))
+    for i, c in enumerate(crews["crew"].to_numpy()):
+        mine = p[p["crew"] == c]
+        one, two = mine[mine["pass_no"] == 1], mine[mine["pass_no"] == 2]
+        if len(one):
+            first = one.sort_values("spread_at").iloc[0]
+            start = first["spread_at"] - pd.Timedelta(minutes=float(spread.get(first["zone_id"], 0.0)))
+            crews.loc[crews.index[i], "start"] = start.strftime("%H:%M")
+            crews.loc[crews.index[i], "done_by"] = one["spread_at"].max().strftime("%H:%M")
+        crews.loc[crews.index[i], "second_pass"] = (two["spread_at"].min().strftime("%H:%M")
+                                                    if len(two) else None)

@@ -1,118 +1,115 @@
-"""Dosing stage: the cold balance of every zone, with verdicts, passes, P50/P90 and provenance.
+"""Dosing stage, "harden and hold": per-pass doses timed to the race, with P50/P90 and provenance.
 
-:func:`apply_dosing` takes the zones table after the conditions stage and adds the columns that
-:mod:`courseplan.columns` declares for the ``dosing`` stage.  The physics lives in
-:mod:`courseplan.physics` (brine, energy, dose); this module only gathers the inputs, samples the
-uncertain ones (Part E of docs/model.md) and writes the results with where each input came from.
+The physics is :mod:`courseplan.physics.hold` (free water + skeleton cold + the sun while the salt
+acts, then how long the pass holds).  This module prepares each zone's net energy series over the
+race day (:func:`prepare_dosing`), doses one pass for the zones that get it at the times the crews
+stage gives (:func:`dose_pass`), and writes the zones' dosing columns and the ``passes`` table
+(:func:`finish_dosing`).  The pipeline runs the passes in order: pass 1 before inspection, pass k in
+the break before run k for the zones that would be soft again before run k ends.
 
-Sampling: ``[dosing] samples`` Latin-hypercube samples seeded by ``[dosing] seed`` (same seed, same
-numbers).  Two inputs are uncertain: the liquid water content, drawn inside its wetness class
-(Fierz et al. 2009) where the snow state came from a class rather than a measured percentage,
-and the air temperature, shifted by a normal offset with the forecast spread
-``[forecast] air_temp_spread_k`` (the same offset over the whole window and for all zones of a
-sample, so plan totals add up per sample).  P50/P90 are percentiles over the samples; verdicts,
-passes and pass times refer to the zone's nominal state and the P50 dose.
+Sampling: ``[dosing] samples`` Latin-hypercube samples seeded by ``[dosing] seed``.  Three inputs
+are uncertain: the liquid water content (inside its wetness class, Fierz et al. 2009, where the
+snow state came from a class), the air temperature (normal offset with ``[forecast]
+air_temp_spread_k``, one offset for the whole day and all zones of a sample) and the albedo
+(uniform in ``albedo ± albedo_spread``, one value per sample).  P50/P90 of each pass's dose are
+percentiles over the samples; timing, holds and verdicts use the nominal state.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
-from courseplan.agents.record import Agent
+from courseplan.agents import Agent
 from courseplan.errors import InputError
-from courseplan.physics import brine, energy
-from courseplan.physics.dose import (
-    TREATED,
-    VERDICTS,
-    cold_balance,
-    latin_hypercube,
-    max_salt_per_pass_kg_m2,
-    pass_temperature_c,
-    passes_needed,
-    sample_lwc_pct,
-    verdicts,
-)
+from courseplan.physics import energy
+from courseplan.physics.dose import NEW_SNOW_GRAINS, latin_hypercube, sample_lwc_pct
+from courseplan.physics.hold import EnergySeries, keep_hard, pass_dose
 from courseplan.physics.snow import WETNESS_CLASSES, class_range_text
 
 if TYPE_CHECKING:  # the weather stage's record, for annotations only
     from courseplan.stages.weather import Weather
 
-__all__ = ["apply_dosing", "zone_energy_j_m2"]
+__all__ = ["DoseContext", "PassResult", "VERDICTS", "dose_pass", "finish_dosing", "prepare_dosing"]
 
 REQUIRED = ("zone_id", "irradiation_wh_m2", "area_m2", "lwc_pct", "wetness", "density_kg_m3",
             "snow_temp_c", "grain", "snow_source")
 
+VERDICTS: dict[str, str] = {
+    "treat": "One pass before inspection; spread evenly, no clumps, cover the turn apexes.",
+    "treat-in-passes": "Salt again at the times shown: the sun softens this zone before its runs end.",
+    "slush-risk": "Moist snow: more salt than this layer can take turns it to mush; spread the dose "
+                  "shown only, and water or groom first if it stays soft.",
+    "water-first": "Too dry for the salt to dissolve, and the sun will not wet it in time: water and "
+                   "groom first (or scrape down to moister snow), then measure again.",
+    "too-cold": "Cold snow without free water: salt brings nothing here; wait until the snow is at "
+                "0 °C and wet.",
+    "slush": "Soaked snow has lost its structure: drain or groom it and let it firm before salting.",
+    "new-snow": "New snow soaks up brine without bonding: compact or remove it before salting.",
+}
+"""Verdict name → one line of advice (the project's own words)."""
 
-def zone_energy_j_m2(irradiation_wh_m2, weather: Weather, albedo: float, temp_offset_k=0.0):
-    """Step net energy [J/m²] per zone, offset and step: shape (zones, offsets, steps).
-
-    Shortwave of each step = zone window irradiation × the step's clear-sky share × the Kasten &
-    Czeplak cloud factor × (1 − albedo); the weather part (longwave, sensible, latent) is computed
-    once per offset and step (it does not depend on the zone).
-    """
-    irr = np.asarray(irradiation_wh_m2, dtype=float)[:, None, None]
-    dt = np.atleast_1d(np.asarray(temp_offset_k, dtype=float))[None, :, None]
-    kc = np.asarray(energy.cloud_shortwave_factor(weather.cloud_fraction))
-    sw = (1.0 - albedo) * irr * 3600.0 * (weather.sw_share * kc)[None, None, :]
-    flux = energy.weather_flux_w_m2(weather.air_temp_c[None, None, :] + dt, weather.rh_pct, weather.wind_m_s,
-                                    weather.cloud_fraction, weather.pressure_pa)
-    return sw + np.asarray(flux) * (weather.hours * 3600.0)[None, None, :]
-
-
-def _pass_times(step_e: np.ndarray, weather: Weather, passes: np.ndarray) -> list[str]:
-    """Spread the passes over the window in proportion to the cumulative energy (nominal state)."""
-    edges = list(weather.hour_start) + [weather.hour_end[-1]]
-    t_edges = np.array([pd.Timestamp(t).as_unit("ns").value for t in edges], dtype=float)
-    out = []
-    for e_z, n in zip(step_e, passes, strict=True):
-        n = int(n)
-        if n <= 0:
-            out.append("")
-            continue
-        cum = np.concatenate([[0.0], np.maximum.accumulate(np.maximum(np.cumsum(e_z), 0.0))])
-        total = cum[-1]
-        times = []
-        for k in range(n):
-            frac = k / n
-            if total > 0 and np.all(np.diff(cum) >= 0) and cum[-1] > cum[0]:
-                t = np.interp(frac * total, cum, t_edges) if k else t_edges[0]
-            else:
-                t = t_edges[0] + frac * (t_edges[-1] - t_edges[0])
-            times.append(pd.Timestamp(int(t), tz="UTC").tz_convert(weather.hour_start.tz).strftime("%H:%M"))
-        out.append("; ".join(times))
-    return out
+TREATED = ("treat", "treat-in-passes", "slush-risk")
+TEMP_TOL_K = 2.0
+"""Tolerance of the closed-layer check: the pass's closed-layer temperature within 2 K of T_b."""
 
 
-def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) -> pd.DataFrame:
-    """Add the dosing columns to the zones table.
+@dataclass(frozen=True, eq=False)
+class DoseContext:
+    """Everything the passes of one plan share: energy series, samples, settings, agent."""
 
-    Parameters
-    ----------
-    zones
-        One row per zone with at least ``zone_id, irradiation_wh_m2, area_m2, lwc_pct, wetness,
-        density_kg_m3, snow_temp_c, grain, snow_source`` (see :mod:`courseplan.columns`).  An
-        optional boolean column ``lwc_from_class`` says whether θ came from a wetness class (then it
-        is sampled); without it, zones whose ``snow_source`` is ``class-default`` are sampled.
-    settings
-        Plan settings (``[dosing]``, ``[forecast]``, ``[window]``).
-    agent
-        The agent spread.
-    weather
-        Weather over the hold window (:mod:`courseplan.stages.weather`).
+    zones: pd.DataFrame
+    agent: Agent
+    settings: object
+    purity: float
+    t0: pd.Timestamp
+    dt_s: float
+    nominal: EnergySeries          # (Z, T)
+    sampled: EnergySeries          # (Z, S, T)
+    lwc: np.ndarray                # (Z,)
+    lwc_s: np.ndarray              # (Z, S)
+    rho: np.ndarray                # (Z,)
+    blocked: np.ndarray            # (Z,) verdict that rules out salting, or ""
+    kw: dict
+    albedo_s: np.ndarray
+    d_t: np.ndarray
+    sampled_lwc: np.ndarray
+    weather_source: str = ""
 
-    Returns
-    -------
-    pandas.DataFrame
-        A copy with every ``dosing`` column of :mod:`courseplan.columns` added.
+    def seconds(self, ts) -> np.ndarray:
+        """Seconds from the series origin of tz-aware times (NaT → NaN)."""
+        t = pd.DatetimeIndex(pd.to_datetime(pd.Series(ts), utc=True))
+        out = (t - self.t0.tz_convert("UTC")).total_seconds().to_numpy(dtype=float)
+        return np.where(pd.isna(t), np.nan, out)
 
-    Raises
-    ------
-    InputError
-        A required column is missing or holds NaN.
-    """
+    def timestamp(self, s) -> pd.DatetimeIndex:
+        """Local times of seconds from the origin (NaN and inf → NaT)."""
+        s = np.atleast_1d(np.asarray(s, dtype=float))
+        ok = np.isfinite(s)
+        return pd.DatetimeIndex(self.t0 + pd.to_timedelta(np.where(ok, s, 0.0), unit="s")).where(ok)
+
+
+@dataclass(frozen=True)
+class PassResult:
+    """One pass for all zones (NaN / False where a zone gets no pass)."""
+
+    spread_at_s: np.ndarray
+    dose_g_m2: np.ndarray
+    dose_p90_g_m2: np.ndarray
+    sub_passes: np.ndarray
+    hard_from_s: np.ndarray
+    hard_until_s: np.ndarray
+    layer_temp_c: np.ndarray
+    temp_flag: np.ndarray
+    water_first: np.ndarray
+    slush_risk: np.ndarray
+    energy_j_m2: np.ndarray
+
+
+def _check(zones: pd.DataFrame) -> None:
     missing = [c for c in REQUIRED if c not in zones.columns]
     if missing:
         raise InputError(f"zones table lacks column(s) {', '.join(missing)}", where="dosing stage",
@@ -123,106 +120,257 @@ def apply_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) 
             ids = ", ".join(str(z) for z in np.asarray(zones["zone_id"])[bad][:5])
             raise InputError(f"column {c} is empty (NaN) for zone(s) {ids}", where="dosing stage",
                              fix="fill it in the conditions/zoning stage")
+
+
+def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) -> DoseContext:
+    """Net energy series of every zone over the race day (nominal and sampled) and the samples.
+
+    The weather must come on equal steps (:func:`courseplan.stages.weather.uniform_steps`).  Each
+    step's shortwave is the zone's irradiation × the step's clear-sky share × the Kasten & Czeplak
+    cloud factor × (1 − albedo); longwave (Brutsaert), sensible and latent heat come from
+    :func:`courseplan.physics.energy.weather_flux_w_m2` (Eq. B1).
+    """
+    _check(zones)
     ds = settings.dosing
     purity = ds.purity if ds.purity is not None else agent.purity
-    out = zones.copy()
-    nz = len(out)
-    lwc = np.asarray(out["lwc_pct"], dtype=float)
-    rho = np.asarray(out["density_kg_m3"], dtype=float)
-    ts = np.asarray(out["snow_temp_c"], dtype=float)
-    irr = np.asarray(out["irradiation_wh_m2"], dtype=float)
-    area = np.asarray(out["area_m2"], dtype=float)
-    wet = out["wetness"].astype(object).to_numpy()
-    src = out["snow_source"].astype(str).to_numpy()
-    if "lwc_from_class" in out.columns:
-        sampled = out["lwc_from_class"].fillna(False).astype(bool).to_numpy()
+    hours = np.asarray(weather.hours, dtype=float)
+    if hours.size == 0 or np.ptp(hours) > 1e-6 * max(hours.max(), 1e-9):
+        raise InputError("the weather steps are not equal", where="dosing stage",
+                         fix="build the weather on uniform_steps")
+    dt_s = float(hours[0] * 3600.0)
+    irr = np.asarray(zones["irradiation_wh_m2"], dtype=float)
+    lwc = np.asarray(zones["lwc_pct"], dtype=float)
+    rho = np.asarray(zones["density_kg_m3"], dtype=float)
+    ts = np.asarray(zones["snow_temp_c"], dtype=float)
+    wet = zones["wetness"].astype(object).to_numpy()
+    grain = np.char.upper(zones["grain"].astype(str).to_numpy().astype(str))
+    if "lwc_from_class" in zones.columns:
+        sampled = zones["lwc_from_class"].fillna(False).astype(bool).to_numpy()
     else:
-        sampled = src == "class-default"
-
-    # ---- samples (Part E) ----
+        sampled = zones["snow_source"].astype(str).to_numpy() == "class-default"
     n = int(ds.samples)
-    spread = float(weather.air_temp_spread_k)
     if n == 1:
-        u_lwc, d_t = np.array([np.nan]), np.array([0.0])
+        u = np.full((3, 1), 0.5)
+        d_t, alb = np.array([0.0]), np.array([ds.albedo])
     else:
         from scipy.special import ndtri
 
-        u = latin_hypercube(n, 2, int(ds.seed))
-        u_lwc, d_t = u[0], spread * ndtri(u[1])
-    lwc_s = sample_lwc_pct(lwc, wet, sampled & (n > 1), np.nan_to_num(u_lwc, nan=0.5))
-    step_s = zone_energy_j_m2(irr, weather, ds.albedo, d_t)  # (Z, S, H)
-    e_s = np.maximum(np.max(np.cumsum(step_s, axis=2), axis=2), 0.0)  # Eq. B2
-    step_nom = zone_energy_j_m2(irr, weather, ds.albedo, 0.0)[:, 0, :]  # nominal weather, for pass times
+        u = latin_hypercube(n, 3, int(ds.seed))
+        d_t = float(weather.air_temp_spread_k) * ndtri(u[1])
+        alb = np.clip(ds.albedo + ds.albedo_spread * (2.0 * u[2] - 1.0), 0.05, 0.95)
+    sampled = sampled & (n > 1)
+    lwc_s = sample_lwc_pct(lwc, wet, sampled, u[0])
+    # shortwave before albedo [W/m²] per zone and step; weather part per sample and step
+    kc = np.asarray(energy.cloud_shortwave_factor(weather.cloud_fraction), dtype=float)
+    sw0 = irr[:, None] * (weather.sw_share * kc)[None, :] / hours[None, :]            # Wh/m² per h = W/m²
+    wf_nom = np.asarray(energy.weather_flux_w_m2(weather.air_temp_c, weather.rh_pct, weather.wind_m_s,
+                                                 weather.cloud_fraction, weather.pressure_pa), dtype=float)
+    wf_s = np.asarray(energy.weather_flux_w_m2(weather.air_temp_c[None, :] + d_t[:, None], weather.rh_pct,
+                                               weather.wind_m_s, weather.cloud_fraction, weather.pressure_pa),
+                      dtype=float)
+    nominal = EnergySeries((1.0 - ds.albedo) * sw0 + wf_nom[None, :], dt_s)
+    flux_s = (1.0 - alb)[None, :, None] * sw0[:, None, :] + wf_s[None, :, :]
+    sampled_series = EnergySeries(flux_s, dt_s)
+    new = (rho < ds.min_density_kg_m3) | np.isin(grain, NEW_SNOW_GRAINS)
+    blocked = np.select([new, lwc > ds.lwc_max_pct, (ts < 0) & (lwc < ds.lwc_min_pct)],
+                        ["new-snow", "slush", "too-cold"], default="").astype(object)
+    kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=ds.refreeze_share,
+              brine_exit_temp_c=ds.brine_exit_temp_c, mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit,
+              purity=purity, lwc_min_pct=ds.lwc_min_pct)
+    return DoseContext(zones=zones, agent=agent, settings=settings, purity=purity,
+                       t0=pd.Timestamp(weather.hour_start[0]), dt_s=dt_s, nominal=nominal,
+                       sampled=sampled_series, lwc=lwc, lwc_s=lwc_s, rho=rho, blocked=blocked, kw=kw,
+                       albedo_s=alb, d_t=d_t, sampled_lwc=sampled, weather_source=weather.source)
 
-    kw = dict(depth_m=ds.depth_m, refreeze_share=ds.refreeze_share, brine_exit_temp_c=ds.brine_exit_temp_c,
-              mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit, purity=purity)
-    rho_s = np.broadcast_to(rho[:, None], lwc_s.shape)
-    cb_s = cold_balance(agent, lwc_s, rho_s, e_s, with_passes=False, **kw)
-    prod_s = np.asarray(cb_s.product_g_m2, dtype=float).reshape(nz, -1)
-    x_s = np.asarray(cb_s.water_to_remove_kg_m2, dtype=float).reshape(nz, -1)
-    dose50 = np.percentile(prod_s, 50, axis=1)
-    dose90 = np.percentile(prod_s, 90, axis=1)
-    x50 = np.percentile(x_s, 50, axis=1)
-    e50 = np.percentile(e_s, 50, axis=1)
-    e90 = np.percentile(e_s, 90, axis=1)
 
-    # ---- passes at the nominal state for the P50 dose ----
-    xw = agent.crystal_water_fraction / purity
-    salt50 = dose50 / 1000.0 * purity
-    smax = max_salt_per_pass_kg_m2(agent, lwc, rho, ds.mix_depth_m, ds.slush_limit, xw)
-    smax = np.atleast_1d(np.asarray(smax, dtype=float))
-    npass = np.atleast_1d(np.asarray(passes_needed(salt50, smax)))
-    per = np.where(npass > 0, salt50 / np.maximum(npass, 1), 0.0)
-    tpass = np.atleast_1d(np.asarray(pass_temperature_c(agent, per, lwc, rho, ds.mix_depth_m, xw),
-                                     dtype=float))
+def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
+    """Dose one pass for the zones with a finite spread time [s from the day's origin]."""
+    t = np.asarray(spread_at_s, dtype=float)
+    go = np.isfinite(t) & (ctx.blocked == "")
+    tt = np.where(go, t, 0.0)
+    nom = pass_dose(ctx.agent, ctx.nominal, tt, ctx.lwc, ctx.rho, temp_tol_k=TEMP_TOL_K,
+                    with_layer_temp=True, **ctx.kw)
+    smp = pass_dose(ctx.agent, ctx.sampled, tt[:, None], ctx.lwc_s, ctx.rho[:, None], **ctx.kw)
+    prod = np.nan_to_num(np.asarray(smp.product_g_m2, dtype=float))
+    wf = np.asarray(nom.water_first, dtype=bool)
+    use = go & ~wf
+    p50 = np.where(use, np.percentile(prod, 50, axis=1), 0.0)
+    p90 = np.where(use, np.maximum(np.percentile(prod, 90, axis=1), p50), 0.0)
 
-    verdict = verdicts(lwc, rho, ts, out["grain"].astype(str).to_numpy(), x50, npass,
-                       lwc_min_pct=ds.lwc_min_pct, lwc_max_pct=ds.lwc_max_pct,
-                       min_density_kg_m3=ds.min_density_kg_m3)
-    treated = np.isin(verdict.astype(str), TREATED)
-    r_tb = float(brine.refreeze_ratio(agent, ds.brine_exit_temp_c)) + agent.water_per_salt - xw
+    def m(a, fill=np.nan):
+        return np.where(use, np.asarray(a, dtype=float), fill)
 
-    out["verdict"] = verdict.astype(str)
-    out["advice"] = [VERDICTS[v] for v in verdict]
-    out["energy_in_mj_m2"] = e50 / 1e6
-    out["energy_in_p90_mj_m2"] = e90 / 1e6
-    out["water_to_remove_kg_m2"] = x50
-    out["dose_g_m2"] = np.where(treated, dose50, 0.0)
-    out["dose_p90_g_m2"] = np.where(treated, dose90, 0.0)
-    out["passes"] = np.where(treated, npass, 0).astype(np.int64)
-    out["dose_per_pass_g_m2"] = np.where(treated, dose50 / np.maximum(npass, 1), 0.0)
-    out["max_pass_g_m2"] = smax / purity * 1000.0
-    out["pass_temp_c"] = np.where(treated, tpass, np.nan)
-    out["pass_times"] = _pass_times(step_nom, weather, np.where(treated, npass, 0))
-    out["product_kg"] = out["dose_g_m2"].to_numpy() * area / 1000.0
-    out["product_p90_kg"] = out["dose_p90_g_m2"].to_numpy() * area / 1000.0
-    out["nitrogen_kg"] = out["product_kg"].to_numpy() * purity * agent.nitrogen_fraction
-    out["chloride_kg"] = out["product_kg"].to_numpy() * purity * agent.chloride_fraction
-    out["refreeze_ratio_kg_kg"] = r_tb
-    out["brine_exit_temp_c"] = float(ds.brine_exit_temp_c)
-    out["refreeze_share"] = float(ds.refreeze_share)
-    out["lwc_sampled"] = sampled & (n > 1)
-    out["weather_source"] = weather.source
+    return PassResult(spread_at_s=np.where(go, t, np.nan), dose_g_m2=p50, dose_p90_g_m2=p90,
+                      sub_passes=np.where(use, np.asarray(nom.sub_passes), 0).astype(int),
+                      hard_from_s=m(nom.hard_from_s), hard_until_s=m(nom.hard_until_s),
+                      layer_temp_c=m(nom.layer_temp_c), temp_flag=use & np.asarray(nom.temp_flag, dtype=bool),
+                      water_first=go & wf, slush_risk=use & np.asarray(nom.slush_risk, dtype=bool),
+                      energy_j_m2=m(nom.e_k))
 
-    cal = f" (fitted on {ds.calibrated})" if getattr(ds, "calibrated", None) else " (setting)"
-    wline = weather.describe()
+
+def _hhmm(ts) -> str:
+    return "" if pd.isna(ts) else pd.Timestamp(ts).strftime("%H:%M")
+
+
+def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], schedule) -> tuple:
+    """The zones' dosing columns, the ``passes`` table and the notes, from the passes spread.
+
+    Parameters
+    ----------
+    ctx
+        From :func:`prepare_dosing`.
+    passes
+        ``(slot, PassResult)`` in pass order (slots of :func:`courseplan.schedule.pass_slots`).
+    schedule
+        The race schedule (for the runs a zone must hold through).
+
+    Returns
+    -------
+    tuple
+        (zones with the ``dosing`` columns, passes table, notes).
+    """
+    z = ctx.zones.copy()
+    nz = len(z)
+    ds = ctx.settings.dosing
+    area = np.asarray(z["area_m2"], dtype=float)
+    ids = np.asarray(z["zone_id"])
     rows = []
-    for i in range(nz):
-        if out["lwc_sampled"].iat[i]:
-            lo_hi = class_range_text(str(wet[i])) if str(wet[i]) in WETNESS_CLASSES else "?"
-            lw = f"θ {lwc[i]:.1f} % ({src[i]}, class {wet[i]}: sampled {lo_hi} %)"
+    total50 = np.zeros(nz)
+    total90 = np.zeros(nz)
+    count = np.zeros(nz, dtype=int)
+    biggest = np.zeros(nz)
+    times: list[list[str]] = [[] for _ in range(nz)]
+    held_until = np.full(nz, np.nan)
+    first = passes[0][1] if passes else None
+    for slot, r in passes:
+        got = np.isfinite(r.spread_at_s) & (r.dose_g_m2 > 0)
+        spread = ctx.timestamp(r.spread_at_s)
+        hf = ctx.timestamp(r.hard_from_s)
+        hu = ctx.timestamp(np.where(np.isinf(r.hard_until_s), np.nan, r.hard_until_s))
+        for i in np.flatnonzero(got):
+            rows.append({"zone_id": int(ids[i]), "pass_no": int(count[i] + 1), "slot": slot.label,
+                         "spread_at": spread[i], "dose_g_m2": float(r.dose_g_m2[i]),
+                         "dose_p90_g_m2": float(r.dose_p90_g_m2[i]),
+                         "product_kg": float(r.dose_g_m2[i] * area[i] / 1000.0),
+                         "product_p90_kg": float(r.dose_p90_g_m2[i] * area[i] / 1000.0),
+                         "sub_passes": int(r.sub_passes[i]), "hard_from": hf[i],
+                         "hard_until": hu[i] if np.isfinite(r.hard_until_s[i]) else pd.NaT,
+                         "held_to_day_end": bool(np.isinf(r.hard_until_s[i])),
+                         "layer_temp_c": float(r.layer_temp_c[i]), "layer_temp_off": bool(r.temp_flag[i])})
+            count[i] += 1
+            total50[i] += r.dose_g_m2[i]
+            total90[i] += r.dose_p90_g_m2[i]
+            biggest[i] = max(biggest[i], r.dose_g_m2[i])
+            times[i].append(_hhmm(spread[i]))
+            held_until[i] = r.hard_until_s[i]
+    table = pd.DataFrame(rows, columns=["zone_id", "pass_no", "slot", "spread_at", "dose_g_m2", "dose_p90_g_m2",
+                                        "product_kg", "product_p90_kg", "sub_passes", "hard_from", "hard_until",
+                                        "held_to_day_end", "layer_temp_c", "layer_temp_off"])
+    # verdicts
+    wf = first.water_first if first is not None else np.zeros(nz, bool)
+    slush = np.zeros(nz, bool)
+    subs = np.zeros(nz, int)
+    for _, r in passes:
+        slush |= r.slush_risk
+        subs = np.maximum(subs, r.sub_passes)
+    verdict = np.where(ctx.blocked != "", ctx.blocked,
+                       np.where(wf, "water-first", np.where(slush, "slush-risk",
+                                np.where((count > 1) | (subs > 1), "treat-in-passes",
+                                         np.where(count >= 1, "treat", "water-first"))))).astype(object)
+    # holding through the runs: soft minutes during each run, from the passes actually spread
+    short = np.zeros(nz)
+    worst_run = np.zeros(nz, dtype=int)
+    for run in schedule.runs:
+        rs, re_ = ctx.seconds([run.start])[0], ctx.seconds([run.end])[0]
+        last_until = np.full(nz, -np.inf)
+        last_from = np.full(nz, np.inf)
+        for _, r in passes:
+            before = np.isfinite(r.spread_at_s) & (r.spread_at_s <= rs) & (r.dose_g_m2 > 0)
+            last_until = np.where(before, r.hard_until_s, last_until)
+            last_from = np.where(before, r.hard_from_s, last_from)
+        soft = np.maximum(0.0, re_ - np.maximum(last_until, rs)) + np.maximum(0.0, np.minimum(last_from, re_) - rs)
+        soft = np.where(np.isinf(last_from), re_ - rs, np.minimum(soft, re_ - rs)) / 60.0
+        worse = soft > short
+        worst_run = np.where(worse, run.number, worst_run)
+        short = np.maximum(short, soft)
+    treated = np.isin(verdict.astype(str), TREATED)
+    short = np.where(treated, short, 0.0)
+    purity = ctx.purity
+    ag = ctx.agent
+    z["verdict"] = verdict.astype(str)
+    z["advice"] = [VERDICTS[v] for v in verdict]
+    z["dose_g_m2"] = np.where(treated, total50, 0.0)
+    z["dose_p90_g_m2"] = np.where(treated, total90, 0.0)
+    z["passes"] = np.where(treated, count, 0).astype(np.int64)
+    z["max_pass_g_m2"] = np.where(treated, biggest, 0.0)
+    z["pass_times"] = ["; ".join(t) if treated[i] else "" for i, t in enumerate(times)]
+    hu_local = ctx.timestamp(held_until)
+    z["hard_until"] = ["" if not treated[i] or np.isnan(held_until[i]) else
+                       "end of day" if np.isinf(held_until[i]) else _hhmm(hu_local[i]) for i in range(nz)]
+    z["soft_min"] = short
+    z["soft_in_run"] = np.where(short > 0, worst_run, 0).astype(np.int64)
+    z["energy_in_mj_m2"] = (np.where(treated, np.nan_to_num(first.energy_j_m2) / 1e6, 0.0)
+                            if first is not None else np.zeros(nz))
+    z["product_kg"] = z["dose_g_m2"].to_numpy() * area / 1000.0
+    z["product_p90_kg"] = z["dose_p90_g_m2"].to_numpy() * area / 1000.0
+    z["nitrogen_kg"] = z["product_kg"].to_numpy() * purity * ag.nitrogen_fraction
+    z["chloride_kg"] = z["product_kg"].to_numpy() * purity * ag.chloride_fraction
+    z["brine_exit_temp_c"] = float(ds.brine_exit_temp_c)
+    z["refreeze_share"] = float(ds.refreeze_share)
+    z["lwc_sampled"] = ctx.sampled_lwc
+    z["weather_source"] = ctx.weather_source
+    z["dose_inputs"] = _provenance(ctx, z)
+    notes = _notes(ctx, z, table, passes, schedule)
+    return z, table, notes
+
+
+def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
+    ds = ctx.settings.dosing
+    cal = f" (fitted on {ds.calibrated})" if ds.calibrated else " (setting)"
+    out = []
+    for i in range(len(z)):
+        w = str(z["wetness"].iat[i])
+        src = str(z["snow_source"].iat[i])
+        if ctx.sampled_lwc[i]:
+            rng = class_range_text(w) if w in WETNESS_CLASSES else "?"
+            lw = f"θ {ctx.lwc[i]:.1f} % ({src}, class {w}: sampled {rng} %)"
         else:
-            lw = f"θ {lwc[i]:.1f} % ({src[i]})"
-        rows.append(
-            f"{lw}; ρ {rho[i]:.0f} kg/m³, T_s {ts[i]:.1f} °C, grain {out['grain'].iat[i]} ({src[i]}); "
-            f"sun {irr[i]:.0f} Wh/m² clear-sky on the slope (sun/shade raster), "
-            f"albedo {ds.albedo:.2f} (setting); "
-            f"weather {wline}; shortwave shares: {weather.sw_share_source}; "
-            f"T_b {ds.brine_exit_temp_c:.1f} °C{cal}, k_f {ds.refreeze_share:.2f}{cal}, "
-            f"depth {ds.depth_m:.3f} m, "
-            f"mix {ds.mix_depth_m:.3f} m, slush limit {ds.slush_limit:.2f} (settings); "
-            f"agent {agent.name} purity {purity:.2f} "
-            f"({'setting' if ds.purity is not None else 'catalogue'}); "
-            f"{n} samples, seed {ds.seed}")
-    out["dose_inputs"] = rows
+            lw = f"θ {ctx.lwc[i]:.1f} % ({src})"
+        out.append(f"{lw}; ρ {ctx.rho[i]:.0f} kg/m³; sun {float(z['irradiation_wh_m2'].iat[i]):.0f} Wh/m² over "
+                   f"the day; albedo {ds.albedo:.2f} ± {ds.albedo_spread:.2f} (setting); τ {ds.tau_min:.0f} min "
+                   f"(setting, field 15–30 min); T_b {ds.brine_exit_temp_c:.1f} °C{cal}, k_f "
+                   f"{ds.refreeze_share:.2f}{cal}, depth {ds.depth_m:.3f} m; agent {ctx.agent.name} purity "
+                   f"{ctx.purity:.2f}; {int(ds.samples)} samples, seed {ds.seed}")
     return out
+
+
+def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, schedule) -> list[str]:
+    notes = []
+    soft = z[z["soft_min"] > 0.5]
+    if len(soft):
+        worst = soft.sort_values("soft_min", ascending=False)
+        parts = [f"{int(r.zone_id)} ({r.exposure_class}, {r.soft_min:.0f} min in run {int(r.soft_in_run)})"
+                 for r in worst.head(8).itertuples()]
+        more = f" and {len(soft) - 8} more" if len(soft) > 8 else ""
+        notes.append(f"{len(soft)} zone(s) cannot be held hard through their run: {', '.join(parts)}{more}; "
+                     "a pass in the break cannot reach them in time, or the sun re-wets them first")
+    off = table[table["layer_temp_off"]] if len(table) else table
+    if len(off):
+        ids = ", ".join(str(int(i)) for i in sorted(set(off["zone_id"]))[:10])
+        notes.append(f"closed-layer check: in zone(s) {ids} a pass settles more than {TEMP_TOL_K:.0f} K from "
+                     f"T_b = {ctx.settings.dosing.brine_exit_temp_c:.1f} °C in the top "
+                     f"{ctx.settings.dosing.depth_m * 100:.0f} cm: the brine spreads deeper, or T_b is off "
+                     "for this snow; a test patch settles it")
+    # keep-hard comparison: re-salting at every hold end from pass 1 to the last run's end
+    if passes:
+        t1 = passes[0][1].spread_at_s
+        end = ctx.seconds([schedule.last_end])[0]
+        go = np.isfinite(t1) & (z["verdict"].isin(TREATED).to_numpy())
+        if go.any():
+            kh = keep_hard(ctx.agent, ctx.nominal, ctx.lwc, ctx.rho, np.where(go, t1, np.inf), end, **ctx.kw)
+            kg = float(np.sum(np.where(go, np.asarray(kh.product_g_m2), 0.0) * z["area_m2"].to_numpy()) / 1000.0)
+            plan_kg = float(z["product_kg"].sum())
+            notes.append(f"keep-hard comparison: re-salting every zone each time it softens until "
+                         f"{schedule.last_end:%H:%M} would take {int(np.sum(np.where(go, kh.passes, 0)))} passes "
+                         f"and {kg:,.0f} kg (P50), against {plan_kg:,.0f} kg in this plan")
+    return notes

@@ -283,7 +283,7 @@ def site_altitude_m(dem: Grid | None) -> tuple[float, str | None]:
 
 
 def plan_sun(*, lon: float, lat: float, date: str, start: str, end: str, timezone: str, sun: Grid | None,
-             encoding: str, dem: Grid | None, crs, sources: dict) -> PlanSun:
+             encoding: str, dem: Grid | None, crs, sources: dict, step_min: float = SUN_STEP_MIN) -> PlanSun:
     """Sun inputs of a plan: the clear-sky window at the course and the sun/shade grid.
 
     Without a sun raster the sun share is computed from the DEM (:func:`sun_from_dem`); with a DEM,
@@ -294,7 +294,7 @@ def plan_sun(*, lon: float, lat: float, date: str, start: str, end: str, timezon
     altitude, note = site_altitude_m(dem)
     if note:
         notes.append(note)
-    cs = clear_sky_window(lat, lon, altitude, date, start, end, timezone, SUN_STEP_MIN)
+    cs = clear_sky_window(lat, lon, altitude, date, start, end, timezone, step_min)
     if sun is None:
         if dem is None:
             raise SettingsError("neither a sun raster nor a DEM is given", where="[inputs]",

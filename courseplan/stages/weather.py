@@ -163,7 +163,13 @@ def _pressure(settings) -> float:
     return float(hpa) * 100.0 if hpa else 85000.0
 
 
-def weather_from_settings(settings, clear_sky_profile: Any = None) -> Weather:
+def uniform_steps(t0: pd.Timestamp, t1: pd.Timestamp, n: int) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
+    """*n* equal steps from *t0* to *t1* (tz-aware): step starts and ends."""
+    edges = pd.DatetimeIndex([t0 + (t1 - t0) * (k / n) for k in range(n + 1)])
+    return edges[:-1], edges[1:]
+
+
+def weather_from_settings(settings, clear_sky_profile: Any = None, *, steps=None) -> Weather:
     """Weather over the window from the ``[forecast]`` constants of the plan.
 
     Parameters
@@ -173,8 +179,10 @@ def weather_from_settings(settings, clear_sky_profile: Any = None) -> Weather:
     clear_sky_profile
         A :class:`~courseplan.physics.solar.ClearSkyWindow` of the window, or one weight per
         step (see :func:`window_steps`), or None for the sinusoidal stand-in.
+    steps
+        Step starts and ends to use instead of the window's clock hours (:func:`uniform_steps`).
     """
-    start, end = window_steps(settings)
+    start, end = window_steps(settings) if steps is None else steps
     fc = settings.forecast
     n = len(start)
     share, src = _sw_shares(start, end, clear_sky_profile)
@@ -186,7 +194,7 @@ def weather_from_settings(settings, clear_sky_profile: Any = None) -> Weather:
 
 
 def weather_from_table(df: pd.DataFrame, settings, clear_sky_profile: Any = None, *,
-                       source: str = "forecast file", max_gap_h: float = 1.0) -> Weather:
+                       source: str = "forecast file", max_gap_h: float = 1.0, steps=None) -> Weather:
     """Weather over the window from an hourly forecast table.
 
     Values are interpolated linearly in time to each window step's mid-point; the table may stop
@@ -221,7 +229,7 @@ def weather_from_table(df: pd.DataFrame, settings, clear_sky_profile: Any = None
     times = pd.DatetimeIndex(pd.to_datetime(df["time"]))
     times = times.tz_localize(tz) if times.tz is None else times.tz_convert(tz)
     date = None if settings.plan.date else str(times[0].date())
-    start, end = window_steps(settings, date)
+    start, end = window_steps(settings, date) if steps is None else steps
     t_sec = times.as_unit("ns").asi8 / 1e9
     order = np.argsort(t_sec)
     t_sec = t_sec[order]
