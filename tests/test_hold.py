@@ -198,7 +198,7 @@ def test_pass_lies_in_field_band(fluxes, frac, theta, rho):
 
 
 @settings(max_examples=40, deadline=None)
-@given(st.floats(-100.0, 100.0), st.floats(4.5, 5.5))
+@given(st.floats(-100.0, 80.0), st.floats(4.5, 5.5))
 def test_closed_layer_temperature_of_a_field_band_pass(flux, theta):
     # design "the closed-layer temperature of a pass matches T_b within the stated tolerance" (2 K):
     # a 30–60 g/m² NaCl pass in 4 cm at θ ≈ 5 %, ρ 550 kg/m³ (field band, field-evidence table 1a)

@@ -102,16 +102,20 @@ class EnergySeries:
     cum_j_m2: np.ndarray = field(init=False, repr=False)
 
     def __post_init__(self):
-        f = np.array(self.flux_w_m2, dtype=float)  # own contiguous copy
+        f = np.ascontiguousarray(self.flux_w_m2, dtype=float)  # kept by reference: do not modify it later
         dt = float(self.dt_s)
         if f.ndim == 0 or f.shape[-1] < 1:
             raise InputError("energy series has no time steps", where="hold",
                              fix="give the flux as an array of shape (..., T) with T >= 1")
         if not (np.isfinite(dt) and dt > 0):
             raise InputError(f"time step {self.dt_s!r} s is not positive", where="hold")
-        cum = np.concatenate([np.zeros(f.shape[:-1] + (1,)), np.cumsum(f * dt, axis=-1)], axis=-1)
-        for k, v in dict(flux_w_m2=f, dt_s=dt, cum_j_m2=cum, _f=f.ravel(), _c=cum.ravel()).items():
-            object.__setattr__(self, k, v)  # _f, _c: flat copies for the gathers
+        pad = np.empty(f.shape[:-1] + (f.shape[-1] + 2,))  # nodes 0…T and a +inf sentinel per row
+        pad[..., 0], pad[..., -1] = 0.0, np.inf
+        np.cumsum(f, axis=-1, out=pad[..., 1:-1])
+        pad[..., 1:-1] *= dt
+        for k, v in dict(flux_w_m2=f, dt_s=dt, cum_j_m2=pad[..., :-1], _c=pad.ravel(),
+                         _nan=np.isnan(pad[..., -2]).ravel()).items():  # _c flat nodes, _nan NaN rows
+            object.__setattr__(self, k, v)
 
     steps = property(lambda self: self.flux_w_m2.shape[-1], doc="Number of steps T.")
     end_s = property(lambda self: self.steps * self.dt_s, doc="End of the grid, T·dt [s].")
@@ -132,62 +136,55 @@ def _take(a, idx):
     return a if np.ndim(a) == 0 else a[idx]
 
 
-def _step_of(s: EnergySeries, t):
-    u = np.where(np.isfinite(t), t, 0.0) / s.dt_s
-    return np.clip(np.floor(u), 0, s.steps - 1).astype(np.intp)
-
-
-def _c_at(s: EnergySeries, rows, t):
-    """C(t) with linear interpolation inside the step [J/m²]; NaN outside [0, T·dt]."""
-    j = _step_of(s, t)
-    c = s._c[rows * (s.steps + 1) + j] + s._f[rows * s.steps + j] * (t - j * s.dt_s)
-    return np.where((t >= 0) & (t <= s.end_s), c, np.nan)
+def _at(s: EnergySeries, rows, t):
+    """Step j holding t, flat index b of its first node, and C(t) interpolated (NaN off [0, T·dt])."""
+    j = np.fmin(np.fmax(t / s.dt_s, 0.0), s.steps - 1).astype(np.intp)  # fmax/fmin: NaN → 0
+    b = rows * (s.steps + 2) + j
+    c0 = s._c[b]
+    c = c0 + (s._c[b + 1] - c0) * (t / s.dt_s - j)
+    return j, b, np.where((t >= 0) & (t <= s.end_s), c, np.nan)
 
 
 def _peak_gain(s: EnergySeries, rows, t, tau):
-    """Peak of C(u) − C(t) over u in [t, t + τ], floored at 0; the window is cut at the grid end."""
+    """Peak of C(u) − C(t) over u in [t, t + τ], ≥ 0 (window cut at the grid end), and _at of its end."""
     t = np.broadcast_to(t, rows.shape)
-    end = np.minimum(t + tau, s.end_s)
-    c0 = _c_at(s, rows, t)
-    best = _c_at(s, rows, np.where(np.isfinite(end), end, 0.0))
-    j0 = _step_of(s, t)
-    tau_max = np.nanmax(np.where(np.isfinite(tau), tau, 0.0)) if np.size(tau) else 0.0
-    base = rows * (s.steps + 1)
-    for m in range(1, min(int(np.ceil(tau_max / s.dt_s)) + 1, s.steps) + 1):  # nodes inside the window
-        n = j0 + m
-        inside = n * s.dt_s < end
-        if not inside.any():
-            break
-        best = np.where(inside, np.maximum(best, s._c[base + np.minimum(n, s.steps)]), best)
-    ok = np.isfinite(t) & (np.asarray(tau) >= 0)
-    return np.where(ok, np.maximum(best - c0, 0.0), np.nan)
+    j0, b0, c0 = _at(s, rows, t)
+    je, be, ce = _at(s, rows, np.minimum(t + tau, s.end_s))
+    span, best = je - j0, ce  # nodes j0+1 … je lie inside the window
+    for m in range(1, int(span.max(initial=0)) + 1):
+        best = np.where(m <= span, np.maximum(best, s._c[b0 + np.minimum(m, span)]), best)
+    e = np.maximum(best - c0, 0.0)  # NaN stays NaN
+    e = e if np.all(np.asarray(tau) >= 0) else np.where(np.asarray(tau) >= 0, e, np.nan)
+    return e, (je, be, ce)
 
 
-def _first_gain(s: EnergySeries, rows, h, gain):
-    """First u ≥ h with C(u) − C(h) ≥ gain, interpolated inside its step; +inf if not in the grid."""
+def _first_gain(s: EnergySeries, rows, h, gain, at=None):
+    """First u ≥ h with C(u) − C(h) ≥ gain, interpolated inside its step; +inf if not in the grid.
+
+    ``at``: :func:`_at` of h if already known.  Steps are searched forward until the row's +inf sentinel.
+    """
     h = np.broadcast_to(h, rows.shape)
     gain = np.broadcast_to(gain, rows.shape)
-    out = np.full(rows.shape, np.nan)
-    ok = (h >= 0) & np.isfinite(h) & ~np.isnan(gain)
-    out[ok & (gain <= 0)] = h[ok & (gain <= 0)]
-    out[ok & (gain > 0) & (h >= s.end_s)] = np.inf
-    idx = np.flatnonzero(ok & (gain > 0) & (h < s.end_s))
-    r, hh = rows[idx], h[idx]
-    j = _step_of(s, hh)
-    target = _c_at(s, r, hh) + gain[idx]
-    out[idx] = np.inf
-    n1, dt = s.steps + 1, s.dt_s
-    while idx.size:
-        c_next = s._c[r * n1 + j + 1]
-        hit = c_next >= target
-        if hit.any():
-            rh, jh = r[hit], j[hit]
-            u = jh * dt + (target[hit] - s._c[rh * n1 + jh]) / s._f[rh * s.steps + jh]
-            out[idx[hit]] = np.clip(u, hh[hit], (jh + 1) * dt)
-        bad = np.isnan(c_next + target)  # NaN flux
-        out[idx[bad]] = np.nan
-        keep = ~hit & ~bad & (j + 1 < s.steps)
-        idx, r, hh, j, target = idx[keep], r[keep], hh[keep], j[keep] + 1, target[keep]
+    _, b, ch = _at(s, rows, h) if at is None else at
+    target = ch + gain
+    out = np.where((h >= 0) & ~np.isnan(gain), np.where(gain > 0, np.inf, h), np.nan)
+    live = (gain > 0) & (h < s.end_s)
+    idx = None if live.all() else np.flatnonzero(live)  # None: every element, no gather
+    hit_b = np.full(out.shape, -1, dtype=np.intp)  # first node of the step where C crosses the target
+    bb, tt = (b, target) if idx is None else (b[idx], target[idx])
+    while bb.size:
+        c1 = s._c[bb + 1]
+        hit = c1 >= tt  # C rises through the target inside this step (it was below at the step start)
+        hit_b[np.flatnonzero(hit) if idx is None else idx[hit]] = bb[hit]
+        keep = c1 < tt  # NaN drops out (set below)
+        idx = np.flatnonzero(keep) if idx is None else idx[keep]
+        bb, tt = bb[keep] + 1, tt[keep]
+    f = np.flatnonzero(hit_b >= 0)
+    bf, c0, c1 = hit_b[f], s._c[hit_b[f]], s._c[hit_b[f] + 1]
+    u = (bf % (s.steps + 2) + (target[f] - c0) / (c1 - c0)) * s.dt_s
+    out[f] = np.where(np.isinf(c1), np.inf, np.maximum(u, h[f]))  # inf: the row's sentinel
+    if s._nan.any():
+        out[s._nan[rows]] = np.nan  # a NaN flux anywhere in the row: no hold end
     return out
 
 
@@ -195,13 +192,13 @@ def _first_gain(s: EnergySeries, rows, h, gain):
 def cumulative_energy_j_m2(series: EnergySeries, t_s):
     """Cumulative net energy C(t) since the grid origin, linear inside a step [J/m²] (NaN off the grid)."""
     shape, rows, (t,) = _flatten(series, t_s)
-    return _out(_c_at(series, rows, np.broadcast_to(t, rows.shape)).reshape(shape))
+    return _out(_at(series, rows, np.broadcast_to(t, rows.shape))[2].reshape(shape))
 
 
 def sun_while_acting_j_m2(series: EnergySeries, t_s, tau_s=TAU_S):
     """Sun while the salt acts, E_k = max over [t, t+τ] of C(u) − C(t), ≥ 0 [J/m²] (window cut at the end)."""
     shape, rows, (t, tau) = _flatten(series, t_s, tau_s)
-    return _out(_peak_gain(series, rows, t, tau).reshape(shape))
+    return _out(_peak_gain(series, rows, t, tau)[0].reshape(shape))
 
 
 def first_gain_time_s(series: EnergySeries, start_s, gain_j_m2):
@@ -297,7 +294,7 @@ def _pass_flat(ag, s, rows, t, lwc, rho, p, prm, tol, with_layer_temp):
     r = np.asarray(brine.refreeze_ratio(ag, tb), dtype=float) + ag.water_per_salt - xw
     xh, cold, ok = _budget(lwc, rho, d, kf, tb)
     ok = ok & (tau >= 0) & np.isfinite(r) & (r > 0)
-    e = _peak_gain(s, rows, t, tau)
+    e, at_h = _peak_gain(s, rows, t, tau)
     ok = ok & ~np.isnan(e)
     dry = lwc < lmin
     theta_eff = np.where(dry, lwc + 100.0 * e / (L_FUSION * RHO_WATER * d), lwc)
@@ -310,7 +307,8 @@ def _pass_flat(ag, s, rows, t, lwc, rho, p, prm, tol, with_layer_temp):
     n = np.where(wf | ~ok, 0, np.where(slush, 1, n))
     reserve = L_FUSION * xh + cold
     h = t + tau
-    until = _first_gain(s, rows, np.where(wf, np.nan, h), reserve)
+    h_s = np.broadcast_to(np.where(wf, np.nan, h), rows.shape)
+    until = _first_gain(s, rows, h_s, reserve, at_h if np.all(h_s[~wf] <= s.end_s) else None)
     res = dict(x_h=xh, x_c=cold / L_FUSION, e_k=e, salt=salt, salt_uncapped=salt_u,
                product_g_m2=salt / p * 1000.0, product_uncapped_g_m2=salt_u / p * 1000.0,
                max_salt_per_pass=smax, reserve=reserve, hard_from_s=np.where(wf, np.nan, h),
@@ -323,11 +321,12 @@ def _pass_flat(ag, s, rows, t, lwc, rho, p, prm, tol, with_layer_temp):
                                                      product_water_kg=xw * np.where(sel, salt, 0.0)
                                                      ).temperature_c, np.nan)
     mis = np.abs(tl - tb)
-    size = rows.shape
-    res = {k: np.where(ok, np.broadcast_to(v, size), np.nan) for k, v in res.items()}
-    res.update(sub_passes=np.broadcast_to(n, size), layer_temp_c=np.broadcast_to(tl, size),
-               temp_mismatch=np.broadcast_to(mis, size), temp_flag=np.broadcast_to(mis > tol, size),
-               water_first=np.broadcast_to(wf & ok, size), slush_risk=np.broadcast_to(slush, size))
+    def full(v):  # writable, element-shaped (ok and e always are)
+        return v if np.shape(v) == rows.shape else np.broadcast_to(v, rows.shape).copy()
+
+    res = {k: full(v) if ok.all() else np.where(ok, v, np.nan) for k, v in res.items()}
+    res.update(sub_passes=full(n), layer_temp_c=full(tl), temp_mismatch=full(mis), temp_flag=full(mis > tol),
+               water_first=full(wf & ok), slush_risk=full(slush))
     return res
 
 
