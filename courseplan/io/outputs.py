@@ -71,7 +71,18 @@ def summary_dict(result) -> dict[str, Any]:
         "settings": result.settings.to_dict(),
         "zones": zones,
     }
+    if getattr(result, "passes", None) is not None:
+        out["schedule"] = result.schedule.to_dict() if result.schedule is not None else None
+        out["passes"] = passes_table(result).to_dict("records")
     return _plain(out)
+
+
+def passes_table(result) -> pd.DataFrame:
+    """The passes as plain columns: times as ISO 8601 text with the UTC offset (empty where none)."""
+    p = result.passes.copy()
+    for c in ("spread_at", "hard_from", "hard_until"):
+        p[c] = [("" if pd.isna(v) else pd.Timestamp(v).isoformat(timespec="minutes")) for v in p[c]]
+    return p
 
 
 def _gpkg_ready(gdf):
@@ -110,6 +121,8 @@ def write_gpkg(path: Path, result) -> None:
     tot = {k: json.dumps(_plain(v), ensure_ascii=False) for k, v in result.totals().items()}
     pyogrio.write_dataframe(pd.DataFrame({"key": list(tot), "value": list(tot.values())}), path,
                             layer="plan_totals", driver="GPKG")
+    if getattr(result, "passes", None) is not None:
+        pyogrio.write_dataframe(passes_table(result), path, layer="passes", driver="GPKG")
     units = pd.DataFrame([{"column": c.name, "unit": c.unit, "meaning": c.meaning, "stage": c.stage}
                           for c in ALL_COLUMNS])
     pyogrio.write_dataframe(units, path, layer="units", driver="GPKG")
