@@ -108,7 +108,7 @@ class PlanResult:
             "course_surface_area_m2": float(z["area_m2"].sum()),
             "treated_area_m2": float(z.loc[treated, "area_m2"].sum()),
             "total_product_kg": float(z["product_kg"].sum()),
-            "total_product_p90_kg": float(z["product_p90_kg"].sum()),
+            "total_product_p90_kg": float(self.logistics.order.p90_kg),
             "nitrogen_kg": float(z["nitrogen_kg"].sum()),
             "chloride_kg": float(z["chloride_kg"].sum()),
             "verdicts": {str(k): int(v) for k, v in z["verdict"].value_counts().sort_index().items()},
@@ -204,16 +204,22 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
         need = can if slot.number == 1 else can & (hold < ctx.seconds([slot.must_hold_until])[0]) & has_pass
         if not need.any():
             continue
-        at, late = time_pass(zones, need, deadline=slot.deadline, opens=slot.opens, tau_min=ds.tau_min)
+        at, missed = time_pass(zones, need, deadline=slot.deadline, opens=slot.opens, tau_min=ds.tau_min)
         res = dose_pass(ctx, ctx.seconds(at))
         if slot.number == 1:
             has_pass = res.dose_g_m2 > 0
         hold = np.where(np.isfinite(res.spread_at_s) & (res.dose_g_m2 > 0), res.hard_until_s, hold)
         results.append((slot, res))
-        if late.any():
-            late_notes.append(f"{int(late.sum())} zone(s) are spread later than τ before {slot.label} "
-                              f"({slot.deadline:%H:%M}): add crews or start earlier")
-    zones, passes, dose_notes = finish_dosing(ctx, results, schedule)
+        if missed.any():
+            ids = ", ".join(str(int(i)) for i in zones["zone_id"].to_numpy()[missed])
+            late_notes.append(f"{slot.label} ({slot.opens:%H:%M}–{slot.deadline:%H:%M}): the crews reach only "
+                              f"{int((need & ~missed).sum())} of {int(need.sum())} zones in time; zone(s) {ids} "
+                              "get no pass there and stay soft: add crews")
+        early = at[pd.notna(at)].min() if pd.notna(at).any() else None
+        if early is not None and early < day0:
+            late_notes.append(f"{slot.label}: the crews would have to start before {day0:%H:%M}, the start of "
+                              "the plan's day; raise [dosing] lead_h or add crews")
+    zones, passes, dose_notes, plan_p90 = finish_dosing(ctx, results, schedule)
     check_stage("dosing", ctx.zones.columns, zones.columns)
     notes += late_notes + dose_notes
     high = zones["max_pass_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
@@ -223,7 +229,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
 
     step("logistics")
     log = _staged("logistics", gpd.GeoDataFrame(zones, geometry="geometry", crs=inputs.crs),
-                  lambda z: plan_logistics(z, settings, agent, passes=passes,
+                  lambda z: plan_logistics(z, settings, agent, passes=passes, plan_p90_kg=plan_p90,
                                            race_start=schedule.first_start.strftime("%H:%M")))
     course = gpd.GeoDataFrame({"name": [inputs.course_name]}, geometry=[inputs.course], crs=inputs.crs)
     cautions = tuple(cautions_for(agent.name, agent.nitrogen_fraction, nitrate=bool(agent.oxidiser)))
@@ -254,12 +260,12 @@ def _start_in_work(settings: PlanSettings, inputs: LoadedInputs) -> tuple[float,
     return float(x), float(y)
 
 
-def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start=None):
+def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start=None, plan_p90_kg=None):
     """The crews' bags and depots, then the order: :class:`~courseplan.stages.logistics.LogisticsResult`."""
     from courseplan.stages.crews import plan_crews
     from courseplan.stages.logistics import LogisticsResult, plan_order
 
-    cp = plan_crews(zones, settings, agent, pass_table=passes, race_start=race_start)
-    order = plan_order(cp.zones, settings, agent, cp.bag_kg)
+    cp = plan_crews(zones, settings, agent, pass_table=passes, race_start=race_start, plan_p90_kg=plan_p90_kg)
+    order = plan_order(cp.zones, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg)
     return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
                            wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes)

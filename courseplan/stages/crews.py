@@ -132,7 +132,7 @@ class CrewPlan:
 
 
 def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any = None,
-               race_start: str | None = None) -> CrewPlan:
+               race_start: str | None = None, plan_p90_kg: float | None = None) -> CrewPlan:
     """Crew split, depots, bags per zone and timing for a dosed zones table.
 
     Parameters
@@ -173,7 +173,12 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
     kg = np.where(treated, kg, 0.0)
     passes = np.where(treated, np.maximum(out["passes"].fillna(1).to_numpy(dtype=float), 1), 0)
     area = out["area_m2"].to_numpy(dtype=float)
-    bags = np.where(treated, zone_bags(kg90, margin, bag_kg), 0)
+    # bags cover the plan's P90 (the day's 90th percentile over the samples) plus the margin, once:
+    # the zones' own P90s are scaled down to it, so their uncertainty is not stacked
+    scale = 1.0
+    if plan_p90_kg is not None and kg90.sum() > 0:
+        scale = min(1.0, max(plan_p90_kg, kg.sum()) / kg90.sum())
+    bags = np.where(treated, zone_bags(np.maximum(kg90 * scale, kg), margin, bag_kg), 0)
     spread = np.where(treated, area * passes / lg.spread_rate_m2_min, 0.0)
     work = spread + bags * lg.carry_min_per_bag
     dose = out["dose_g_m2"].to_numpy(dtype=float)
@@ -383,15 +388,16 @@ def assign_crews(zones: Any, settings: PlanSettings) -> Any:
 def time_pass(zones: Any, need: np.ndarray, *, deadline, opens, tau_min: float) -> tuple[Any, np.ndarray]:
     """When each crew spreads the zones that need this pass, working back from the deadline.
 
-    Each crew walks its zones in ``work_order``; the last one is finished τ before the deadline (the
-    salt has acted by then), the others before it, one after the other.  When that would start
-    before the slot opens (the end of the previous run), the crew starts when it opens and the zones
-    finished later than τ before the deadline are late.
+    Each crew walks its zones in ``work_order`` (sunny last); the last one is finished τ before the
+    deadline (the salt has acted when the run or the inspection starts), the others before it, one
+    after the other.  In a break (``opens`` given: the end of the previous run) nobody may be on the
+    course before it opens, so zones whose spreading would have to start earlier are not reached:
+    they get no pass and are flagged (the sunny zones, last in the order, are the ones reached).
 
     Returns
     -------
     tuple
-        (spread times as a tz-aware ``DatetimeIndex``, NaT where no pass; late flags).
+        (spread times as a tz-aware ``DatetimeIndex``, NaT where no pass; flags of zones not reached).
     """
     n = len(zones)
     need = np.asarray(need, dtype=bool)
@@ -399,22 +405,21 @@ def time_pass(zones: Any, need: np.ndarray, *, deadline, opens, tau_min: float) 
     order = zones["work_order"].to_numpy()
     mins = zones["spread_min"].to_numpy(dtype=float)
     finish_by = deadline - pd.Timedelta(minutes=float(tau_min))
-    spread_at = pd.DatetimeIndex([pd.NaT] * n, tz=deadline.tz)
-    at = [pd.NaT] * n
-    late = np.zeros(n, dtype=bool)
+    at: list = [pd.NaT] * n
+    missed = np.zeros(n, dtype=bool)
     for c in np.unique(crew[need]):
         idx = np.flatnonzero(need & (crew == c))
-        idx = idx[np.argsort(order[idx], kind="stable")]
-        cum = np.cumsum(mins[idx])
-        start = finish_by - pd.Timedelta(minutes=float(cum[-1]))
-        if opens is not None and start < opens:
-            start = opens
-        for i, done in zip(idx, cum, strict=True):
-            t = start + pd.Timedelta(minutes=float(done))
-            at[i] = t
-            late[i] = t > finish_by + pd.Timedelta(seconds=1)
-    spread_at = pd.DatetimeIndex(at).tz_convert(deadline.tz) if any(pd.notna(x) for x in at) else spread_at
-    return spread_at, late
+        idx = idx[np.argsort(order[idx], kind="stable")][::-1]  # last in the order first, backwards
+        t_done = finish_by
+        for i in idx:
+            start = t_done - pd.Timedelta(minutes=float(mins[i]))
+            if opens is not None and start < opens:
+                missed[i] = True
+                continue
+            at[i] = t_done
+            t_done = start
+    return pd.DatetimeIndex(at).tz_convert(deadline.tz) if any(pd.notna(x) for x in at) else \
+        pd.DatetimeIndex([pd.NaT] * n, tz=deadline.tz), missed
 
 
 def _times_from_passes(crews: Any, zones: Any, passes: Any) -> None:

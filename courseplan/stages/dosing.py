@@ -107,6 +107,7 @@ class PassResult:
     water_first: np.ndarray
     slush_risk: np.ndarray
     energy_j_m2: np.ndarray
+    sample_kg: np.ndarray          # (S,) product of this pass over all zones, per sample
 
 
 def _check(zones: pd.DataFrame) -> None:
@@ -196,6 +197,8 @@ def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
     use = go & ~wf
     p50 = np.where(use, np.percentile(prod, 50, axis=1), 0.0)
     p90 = np.where(use, np.maximum(np.percentile(prod, 90, axis=1), p50), 0.0)
+    area = np.asarray(ctx.zones["area_m2"], dtype=float)
+    sample_kg = np.sum(np.where(use[:, None], prod, 0.0) * area[:, None], axis=0) / 1000.0
 
     def m(a, fill=np.nan):
         return np.where(use, np.asarray(a, dtype=float), fill)
@@ -205,7 +208,7 @@ def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
                       hard_from_s=m(nom.hard_from_s), hard_until_s=m(nom.hard_until_s),
                       layer_temp_c=m(nom.layer_temp_c), temp_flag=use & np.asarray(nom.temp_flag, dtype=bool),
                       water_first=go & wf, slush_risk=use & np.asarray(nom.slush_risk, dtype=bool),
-                      energy_j_m2=m(nom.e_k))
+                      energy_j_m2=m(nom.e_k), sample_kg=sample_kg)
 
 
 def _hhmm(ts) -> str:
@@ -227,7 +230,9 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
     Returns
     -------
     tuple
-        (zones with the ``dosing`` columns, passes table, notes).
+        (zones with the ``dosing`` columns, passes table, notes, the plan's P90 [kg]: the 90th
+        percentile over the samples of the whole day's product — not the sum of the zones' P90s,
+        which would stack their uncertainty).
     """
     z = ctx.zones.copy()
     nz = len(z)
@@ -280,6 +285,7 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
     # holding through the runs: soft minutes during each run, from the passes actually spread
     short = np.zeros(nz)
     worst_run = np.zeros(nz, dtype=int)
+    soft_by_run = {}
     for run in schedule.runs:
         rs, re_ = ctx.seconds([run.start])[0], ctx.seconds([run.end])[0]
         last_until = np.full(nz, -np.inf)
@@ -290,6 +296,7 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
             last_from = np.where(before, r.hard_from_s, last_from)
         soft = np.maximum(0.0, re_ - np.maximum(last_until, rs)) + np.maximum(0.0, np.minimum(last_from, re_) - rs)
         soft = np.where(np.isinf(last_from), re_ - rs, np.minimum(soft, re_ - rs)) / 60.0
+        soft_by_run[run.number] = soft
         worse = soft > short
         worst_run = np.where(worse, run.number, worst_run)
         short = np.maximum(short, soft)
@@ -320,8 +327,10 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
     z["lwc_sampled"] = ctx.sampled_lwc
     z["weather_source"] = ctx.weather_source
     z["dose_inputs"] = _provenance(ctx, z)
-    notes = _notes(ctx, z, table, passes, schedule)
-    return z, table, notes
+    notes = _notes(ctx, z, table, passes, schedule, soft_by_run)
+    day_kg = sum((r.sample_kg for _, r in passes), np.zeros(1))
+    plan_p90 = float(max(np.percentile(day_kg, 90), z["product_kg"].sum())) if passes else 0.0
+    return z, table, notes, plan_p90
 
 
 def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
@@ -344,16 +353,19 @@ def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
     return out
 
 
-def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, schedule) -> list[str]:
+def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, schedule, soft_by_run) -> list[str]:
     notes = []
-    soft = z[z["soft_min"] > 0.5]
-    if len(soft):
-        worst = soft.sort_values("soft_min", ascending=False)
-        parts = [f"{int(r.zone_id)} ({r.exposure_class}, {r.soft_min:.0f} min in run {int(r.soft_in_run)})"
-                 for r in worst.head(8).itertuples()]
-        more = f" and {len(soft) - 8} more" if len(soft) > 8 else ""
-        notes.append(f"{len(soft)} zone(s) cannot be held hard through their run: {', '.join(parts)}{more}; "
-                     "a pass in the break cannot reach them in time, or the sun re-wets them first")
+    for run in schedule.runs:
+        length = (run.end - run.start).total_seconds() / 60.0
+        treated = z["verdict"].isin(TREATED).to_numpy()
+        soft = z.assign(_soft=soft_by_run[run.number])[(soft_by_run[run.number] > 0.5) & treated]
+        if not len(soft):
+            continue
+        whole = int((soft["_soft"] >= length - 0.5).sum())
+        ids = ", ".join(str(int(i)) for i in soft.sort_values("_soft", ascending=False)["zone_id"])
+        notes.append(f"not held through run {run.number} ({run.start:%H:%M}–{run.end:%H:%M}): {len(soft)} zone(s), "
+                     f"{whole} of them soft for the whole run (zones {ids}); the sun spends a pass's hold "
+                     "before the run ends, and no break is near enough to salt again")
     off = table[table["layer_temp_off"]] if len(table) else table
     if len(off):
         ids = ", ".join(str(int(i)) for i in sorted(set(off["zone_id"]))[:10])

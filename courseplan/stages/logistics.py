@@ -232,7 +232,8 @@ def packages_for(total_kg: float, bag_kg: float, big_bag_kg: float | None, big_b
 # ---------------------------------------------------------------- stage
 
 
-def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float) -> Order:
+def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float,
+               plan_p90_kg: float | None = None) -> Order:
     """The order for the logistics lead from the zones table with its ``bags`` column.
 
     Parameters
@@ -246,6 +247,8 @@ def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float) ->
         Catalogue agent.
     bag_kg
         Bag size the crews carry [kg].
+    plan_p90_kg
+        The plan's P90 over the whole day [kg] (from the dosing stage's samples), or None.
     """
     lg = settings.logistics
     margin = float(lg.margin_pct)
@@ -270,10 +273,13 @@ def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float) ->
     ratio = np.divide(kg90, kg, out=np.ones_like(kg), where=kg > 0)
     n_kg = np.nan_to_num(out["nitrogen_kg"].to_numpy(dtype=float))
     cl_kg = np.nan_to_num(out["chloride_kg"].to_numpy(dtype=float))
+    # the plan's P90 is the day's 90th percentile over the samples when the dosing stage gives it;
+    # the sum of the zones' P90s stacks their uncertainty and is only the fallback
+    p90 = float(kg90.sum()) if plan_p90_kg is None else float(max(plan_p90_kg, kg.sum()))
     order = Order(
         agent=str(getattr(agent, "name", "")), agent_label=str(getattr(agent, "label", "")),
-        p50_kg=float(kg.sum()), p90_kg=float(kg90.sum()), margin_pct=margin,
-        needed_kg=float(kg90.sum() * (1 + margin / 100.0)), handed_out_kg=float(handed),
+        p50_kg=float(kg.sum()), p90_kg=p90, margin_pct=margin,
+        needed_kg=float(p90 * (1 + margin / 100.0)), handed_out_kg=float(handed),
         order_kg=order_kg, bag_kg=bag_kg, bags_handed_out=n_out, packages=pkgs, big_bags=n_big,
         pallets=pallets, tonnes=order_kg / 1000.0,
         cost=None if lg.price_per_kg is None else order_kg * lg.price_per_kg,
