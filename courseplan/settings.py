@@ -156,6 +156,8 @@ class Dosing:
     tau_min: float = _f(20.0, "time the salt acts in the layer before the brine drains (field: 15–20 min "
                               "on alpine slopes in spring sun, 30 min rest, 45–60 min on cross-country "
                               "tracks; field-evidence §2)", unit="min", lo=1.0, hi=180.0)
+    compare_keep_hard: bool = _f(True, "also print what re-salting every zone each time it softens "
+                                       "would cost (a comparison, never the plan)")
     lead_h: float = _f(4.0, "how long before the inspection the plan's day starts (the crews' first "
                             "pass fits in it)", unit="h", lo=0.5, hi=12.0)
     purity: float | None = _f(None, "product purity, overriding the catalogue", lo=0.05, hi=1.0)

@@ -374,7 +374,7 @@ def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, sched
                      f"{ctx.settings.dosing.depth_m * 100:.0f} cm: the brine spreads deeper, or T_b is off "
                      "for this snow; a test patch settles it")
     # keep-hard comparison: re-salting at every hold end from pass 1 to the last run's end
-    if passes:
+    if passes and ctx.settings.dosing.compare_keep_hard:
         t1 = passes[0][1].spread_at_s
         end = ctx.seconds([schedule.last_end])[0]
         go = np.isfinite(t1) & (z["verdict"].isin(TREATED).to_numpy())
