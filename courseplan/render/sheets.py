@@ -94,7 +94,8 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
               Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot "
                         "are "
                         "whole bags per zone (P90 + margin). Every crew finishes its first pass "
-                        f"{num(cr['wait_min'], 0)} min before the first start at {cr['first_start']}.",
+                        f"early enough for the agent to act ({num(cr['wait_min'], 0)} min); first run at "
+                        f"{cr['first_start']}.",
                         st["small"])]
     head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
     body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
@@ -188,9 +189,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
                       "throw the handfuls per square metre in the table on each pass. Spread the P50 dose "
                       "evenly over the whole width, turn apexes included, with no clumps; the bags hold P90 "
                       "plus margin, so some may come back.", st["body"]),
-            Paragraph(f"<b>Timing:</b> start {c['start']}; work before the race done by {c['done_by']} "
-                      f"({num(cr['wait_min'], 0)} min before the first start at {cr['first_start']}, for the "
-                      "agent to act)." + (f" Second pass starts at {c['second_pass']}." if c["second_pass"]
+            Paragraph(f"<b>Timing:</b> start {c['start']}; first pass done by {c['done_by']} (the agent "
+                      f"needs {num(cr['wait_min'], 0)} min to act; first run at {cr['first_start']})." + (f" Second pass starts at {c['second_pass']}." if c["second_pass"]
                                           else ""), st["body"]),
         ]
         page += _notes_and_cautions(cr["plan_notes"] + c["notes"], cautions, st)

@@ -7,6 +7,7 @@ Table in (the dosed zones), table out (the zones with ``crew``, ``bags``, ``work
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Any
@@ -299,6 +300,7 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
         _times_from_passes(crews, out, pass_table)
         if race_start:
             first_start = float(minutes_of(race_start, "[race] runs"))
+        lg = dataclasses.replace(lg, wait_min=float(settings.dosing.tau_min))
     return CrewPlan(zones=out, crews=crews, bag_kg=bag_kg, first_start=hhmm(first_start),
                     wait_min=float(lg.wait_min), handful_g=float(lg.handful_g), notes=tuple(notes))
 
