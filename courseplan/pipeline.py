@@ -93,6 +93,7 @@ class PlanResult:
     context: Grid | None
     sources: dict
     passes: Any = None  # pandas.DataFrame, one row per zone and pass (courseplan.columns.PASSES)
+    shortfall: Any = None  # dict when the crews cannot do the plan in time (see _shortfall), else None
     schedule: Any = None  # courseplan.schedule.RaceSchedule
 
     def totals(self) -> dict[str, Any]:
@@ -140,10 +141,11 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     import geopandas as gpd
 
     from courseplan.agents import get_agent
-    from courseplan.schedule import pass_slots, plan_schedule
+    from courseplan.schedule import plan_schedule
     from courseplan.stages.conditions import assign_snow, observation_exposure
-    from courseplan.stages.crews import assign_crews, time_pass
-    from courseplan.stages.dosing import dose_pass, finish_dosing, prepare_dosing
+    from courseplan.stages.crews import crew_bag_kg
+    from courseplan.stages.crews.raceday import assign_crews
+    from courseplan.stages.dosing import finish_dosing, prepare_dosing
     from courseplan.stages.sun import plan_sun, zone_irradiation
     from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
     from courseplan.stages.zoning import ZoningInputs, zone_course
@@ -185,7 +187,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     obs, obs_exp = observation_exposure(inputs.observations, zres.exposure_grid, settings.zoning.exposure_labels)
     zones = _staged("conditions", zones, lambda z: assign_snow(z, obs, settings, window_start=ps.window_start,
                                                               obs_exposure=obs_exp))
-    zones = _staged("crews", zones, lambda z: assign_crews(z, settings))
+    bag_kg = crew_bag_kg(settings, agent)
+    zones = _staged("crews", zones, lambda z: assign_crews(z, settings, bag_kg))
 
     step("dosing")
     cs = ps.clear_sky
@@ -196,32 +199,12 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     else:
         weather = weather_from_settings(settings, cs, steps=steps)
     ctx = prepare_dosing(zones, settings, agent, weather)
-    results, late_notes = [], []
-    hold = np.full(len(zones), -np.inf)
-    can = ctx.blocked == ""
-    has_pass = can
-    for slot in pass_slots(schedule, ds.tau_min):
-        need = can if slot.number == 1 else can & (hold < ctx.seconds([slot.must_hold_until])[0]) & has_pass
-        if not need.any():
-            continue
-        at, missed = time_pass(zones, need, deadline=slot.deadline, opens=slot.opens, tau_min=ds.tau_min)
-        res = dose_pass(ctx, ctx.seconds(at))
-        if slot.number == 1:
-            has_pass = res.dose_g_m2 > 0
-        hold = np.where(np.isfinite(res.spread_at_s) & (res.dose_g_m2 > 0), res.hard_until_s, hold)
-        results.append((slot, res))
-        if missed.any():
-            ids = ", ".join(str(int(i)) for i in zones["zone_id"].to_numpy()[missed])
-            late_notes.append(f"{slot.label} ({slot.opens:%H:%M}–{slot.deadline:%H:%M}): the crews reach only "
-                              f"{int((need & ~missed).sum())} of {int(need.sum())} zones in time; zone(s) {ids} "
-                              "get no pass there and stay soft: add crews")
-        early = at[pd.notna(at)].min() if pd.notna(at).any() else None
-        if early is not None and early < day0:
-            late_notes.append(f"{slot.label}: the crews would have to start before {day0:%H:%M}, the start of "
-                              "the plan's day; raise [dosing] lead_h or add crews")
+    results, worked = _race_day(zones, ctx, schedule, settings, bag_kg)
+    shortfall = _shortfall(zones, worked, schedule, settings)
+    late_notes = _late_notes(zones, worked, schedule, settings, day0, shortfall)
     zones, passes, dose_notes, plan_p90 = finish_dosing(ctx, results, schedule)
     check_stage("dosing", ctx.zones.columns, zones.columns)
-    notes += late_notes + dose_notes
+    notes = late_notes + notes + dose_notes  # a shortfall leads every output
     high = zones["max_pass_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
     if high.any():
         notes.append(f"{int(high.sum())} zone(s) get a pass above {PRACTICE_HIGH_G_M2:.0f} g/m², beyond anything "
@@ -237,7 +220,130 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     return PlanResult(settings=settings, agent=agent, zones=log.zones, course=course, observations=obs,
                       logistics=log, weather=weather, start_xy=zres.start_xy, finish_xy=zres.finish_xy,
                       crs=inputs.crs, notes=tuple(notes) + tuple(log.notes), cautions=cautions,
-                      context=context, sources=sources, passes=passes, schedule=schedule)
+                      context=context, sources=sources, passes=passes, schedule=schedule,
+                      shortfall=shortfall)
+
+
+def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
+    """The passes in race order: who needs one, when the crews spread it, what it takes.
+
+    Pass 1 for every zone salt can work on; pass k for the zones soft again before run k ends.  Each
+    pass is timed at the nominal dose, dosed, then timed again with the minutes its real dose takes
+    and dosed again (the spreading rate depends on the dose).
+    """
+    from courseplan.schedule import pass_slots
+    from courseplan.stages.crews.raceday import pass_minutes, time_pass
+    from courseplan.stages.dosing import dose_pass
+
+    tau = settings.dosing.tau_min
+    min_use = settings.dosing.min_useful_hold_min
+    useless_by_slot: dict = {}
+    results, worked = [], []
+    hold = np.full(len(zones), -np.inf)
+    can = ctx.blocked == ""
+    has_pass = can
+    for slot in pass_slots(schedule, tau):
+        need = can if slot.number == 1 else can & has_pass & (hold < ctx.seconds([slot.must_hold_until])[0])
+        if not need.any():
+            continue
+        mins = zones["spread_min"].to_numpy(dtype=float)
+        run_start = ctx.seconds([slot.deadline])[0]
+        useless = np.zeros(len(zones), dtype=bool)
+        for _ in range(3):
+            at, missed = time_pass(zones.assign(spread_min=mins), need & ~useless, deadline=slot.deadline,
+                                   opens=slot.opens, tau_min=tau)
+            res = dose_pass(ctx, ctx.seconds(at))
+            mins = np.where(res.dose_g_m2 > 0, pass_minutes(zones, settings, res.dose_g_m2, bag_kg), mins)
+            if slot.number >= 2:  # a pass in a break that the sun spends before the run is wasted salt
+                spent = np.isfinite(res.spread_at_s) & (res.hard_until_s < run_start + 60.0 * min_use)
+                useless |= spent
+        if slot.number >= 2 and useless.any():
+            useless_by_slot[slot.number] = useless
+        if slot.number == 1:
+            has_pass = res.dose_g_m2 > 0
+        hold = np.where(np.isfinite(res.spread_at_s) & (res.dose_g_m2 > 0), res.hard_until_s, hold)
+        results.append((slot, res))
+        worked.append((slot, need & ~useless, mins, missed, at, useless))
+    return results, worked
+
+
+def _earliest(schedule, settings: PlanSettings):
+    return pd.Timestamp(f"{schedule.date} {settings.logistics.earliest_start}").tz_localize(
+        schedule.inspection_from.tz)
+
+
+def _fits(zones, worked, schedule, settings: PlanSettings) -> tuple[bool, set, object]:
+    """Whether every pass fits: no zone left unreached in a break, no crew before the earliest start."""
+    from courseplan.stages.crews.raceday import time_pass
+
+    earliest = _earliest(schedule, settings)
+    missed_ids: set = set()
+    first_start = None
+    for slot, need, mins, *_ in worked:
+        at, missed = time_pass(zones.assign(spread_min=mins), need, deadline=slot.deadline, opens=slot.opens,
+                               tau_min=settings.dosing.tau_min)
+        missed_ids |= {int(i) for i in zones["zone_id"].to_numpy()[missed]}
+        ok = pd.notna(at)
+        if ok.any():
+            s = min(a - pd.Timedelta(minutes=float(m)) for a, m, o in zip(at, mins, ok, strict=True) if o)
+            first_start = s if first_start is None else min(first_start, s)
+    early = first_start is not None and first_start < earliest
+    return (not missed_ids and not early), missed_ids, first_start
+
+
+def _shortfall(zones, worked, schedule, settings: PlanSettings):
+    """None when the crews can do the plan; else what is missing and how many crews would do it."""
+    import dataclasses
+
+    from courseplan.stages.crews.raceday import assign_crews
+
+    ok, missed, first = _fits(zones, worked, schedule, settings)
+    if ok:
+        return None
+    lg = settings.logistics
+    needed = None
+    for n in range(lg.crews + 1, 51):
+        s_n = settings.replace(logistics=dataclasses.replace(lg, crews=n))
+        z_n = assign_crews(zones.drop(columns=["crew", "work_order"]), s_n)
+        if _fits(z_n.assign(spread_min=zones["spread_min"]), worked, schedule, s_n)[0]:
+            needed = n
+            break
+    earliest = _earliest(schedule, settings)
+    return {"crews": lg.crews, "crews_needed": needed, "method": lg.method,
+            "zones_not_reached": sorted(missed),
+            "first_start": None if first is None else first.isoformat(timespec="minutes"),
+            "earliest_start": earliest.isoformat(timespec="minutes"),
+            "starts_too_early": bool(first is not None and first < earliest)}
+
+
+def _late_notes(zones, worked, schedule, settings: PlanSettings, day0, shortfall) -> list[str]:
+    notes = []
+    if shortfall is not None:
+        need = (f"{shortfall['crews_needed']} crews would do it" if shortfall["crews_needed"]
+                else "no number of crews up to 50 does it: choose a faster method")
+        what = []
+        if shortfall["zones_not_reached"]:
+            what.append(f"zone(s) {', '.join(map(str, shortfall['zones_not_reached']))} cannot be reached in time")
+        if shortfall["starts_too_early"]:
+            what.append(f"the first pass would start at {shortfall['first_start'][11:16]}, before the earliest start "
+                        f"{settings.logistics.earliest_start}")
+        notes.append(f"SHORTFALL: {shortfall['crews']} crew(s) ({shortfall['method']}) cannot do this plan: "
+                     f"{'; '.join(what)}; {need}")
+    for slot, need, _, missed, at, useless in worked:
+        if useless.any():
+            ids = ", ".join(str(int(i)) for i in zones["zone_id"].to_numpy()[useless])
+            notes.append(f"{slot.label}: no pass for zone(s) {ids}: salt spread there in the break would be spent "
+                         f"by the sun less than {settings.dosing.min_useful_hold_min:.0f} min into the run")
+        if missed.any():
+            ids = ", ".join(str(int(i)) for i in zones["zone_id"].to_numpy()[missed])
+            notes.append(f"{slot.label} ({slot.opens:%H:%M}–{slot.deadline:%H:%M}): the crews reach only "
+                         f"{int((need & ~missed).sum())} of {int(need.sum())} zones in time; zone(s) {ids} get no "
+                         "pass there and stay soft")
+        early = at[pd.notna(at)].min() if pd.notna(at).any() else None
+        if early is not None and early < day0:
+            notes.append(f"{slot.label}: the crews would have to spread before {day0:%H:%M}, the start of the "
+                         "plan's day; raise [dosing] lead_h")
+    return notes
 
 
 def _staged(stage: str, zones, run):

@@ -156,6 +156,10 @@ class Dosing:
     tau_min: float = _f(20.0, "time the salt acts in the layer before the brine drains (field: 15–20 min "
                               "on alpine slopes in spring sun, 30 min rest, 45–60 min on cross-country "
                               "tracks; field-evidence §2)", unit="min", lo=1.0, hi=180.0)
+    min_useful_hold_min: float = _f(10.0, "a pass in a break is spread only where it keeps the zone hard at "
+                                          "least this long into the run (common practice, no source: salt "
+                                          "that the sun spends before the racers come is wasted)",
+                                    unit="min", lo=0.0, hi=120.0)
     compare_keep_hard: bool = _f(True, "also print what re-salting every zone each time it softens "
                                        "would cost (a comparison, never the plan)")
     lead_h: float = _f(4.0, "how long before the inspection the plan's day starts (the crews' first "
@@ -191,10 +195,15 @@ class Logistics:
     price_per_kg: float | None = _f(None, "product price", unit="currency/kg", lo=0.0)
     currency: str = _f("EUR", "currency of the price")
     crews: int = _f(3, "number of crews", lo=1, hi=50)
-    spread_rate_m2_min: float = _f(150.0, "area one crew spreads per minute (hand or push spreader; "
-                                          "estimate: walking about 1 m/s with a 2.5 m throw, common "
-                                          "practice, no source)",
-                                   unit="m²/min", lo=1.0, hi=10000.0)
+    method: str = _f("push", "how the crews spread: by hand from bags, push spreaders, or a spreader towed "
+                             "by a snowmobile (rates in docs/logistics.md)", choices=("hand", "push", "towed"))
+    people_per_crew: int = _f(3, "people in one crew (hand: each throws; push: each pushes a spreader; "
+                                 "towed: one spreader per crew)", lo=1, hi=20)
+    spread_rate_m2_min: float | None = _f(None, "fixed area one crew spreads per minute, overriding the "
+                                                "method's dose-dependent rate", unit="m²/min", lo=1.0,
+                                          hi=10000.0)
+    earliest_start: str = _f("05:00", "earliest time a crew can start on race day, HH:MM local time "
+                                      "(common practice, no source: crews work by headlamp before dawn)")
     carry_min_per_bag: float = _f(2.0, "time to carry one bag from the depot into its zone",
                                   unit="min", lo=0.0, hi=120.0)
     handful_g: float = _f(40.0, "mass of one handful for hand spreading (an estimate)", unit="g",

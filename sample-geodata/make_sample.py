@@ -408,7 +408,7 @@ depth_m = 0.04
 samples = 200
 
 [logistics]
-crews = 4
+crews = 6
 margin_pct = 10.0
 """
     (out / "plan.toml").write_text(plan, encoding="utf-8")

@@ -104,7 +104,7 @@ def test_bad_schedule_is_one_line_and_exit_2(tmp_path, race, words):
 
 
 def test_time_pass_works_back_from_the_deadline_and_drops_what_a_break_cannot_reach():
-    from courseplan.stages.crews import time_pass
+    from courseplan.stages.crews.raceday import time_pass
 
     z = pd.DataFrame({"crew": [1, 1, 1], "work_order": [1, 2, 3], "spread_min": [30.0, 30.0, 30.0]})
     dl = pd.Timestamp("2027-03-18 12:30", tz="Europe/Zurich")

@@ -91,8 +91,9 @@ def test_every_import_follows_the_layer_rules():
             if target == "courseplan" and unit in ("io", "api", "cli", "__init__"):
                 continue  # __version__
             ok = tunit in ALLOWED[unit] or (tunit == unit and unit in CORE)
-            if unit == "stages" and tunit == "stages":
-                ok = _resolve(target, mods) in (mod, "courseplan.stages")
+            if unit == "stages" and tunit == "stages":   # a stage may import only its own modules
+                tgt = _resolve(target, mods).split(".")
+                ok = len(tgt) < 3 or tgt[2] == mod.split(".")[2]
             if not ok:
                 bad.append(f"{path.relative_to(PKG.parent)}:{line} {mod} imports {target}")
     assert not bad, "layer rule broken:\n" + "\n".join(bad)
@@ -140,7 +141,7 @@ def test_the_checker_sees_imports_inside_functions(tmp_path, text, broken):
 
 def test_no_module_over_450_lines_without_a_reason():
     # DEVELOPERS.md names the exceptions and why
-    allowed = {"courseplan/physics/brine.py"}
+    allowed = {"courseplan/physics/brine.py", "courseplan/settings.py"}
     long = [f"{p.relative_to(PKG.parent)}: {n}" for p in PKG.rglob("*.py")
             if (n := len(p.read_text(encoding="utf-8").splitlines())) > 450
             and str(p.relative_to(PKG.parent)) not in allowed]

@@ -26,7 +26,8 @@ from courseplan.cautions import storage_cautions
 from courseplan.errors import InputError, SettingsError
 from courseplan.pipeline import plan_logistics
 from courseplan.settings import PlanSettings
-from courseplan.stages.crews import CARRY_LIMIT_KG, crew_bag_kg, split_contiguous, zone_bags
+from courseplan.stages.crews import CARRY_LIMIT_KG, crew_bag_kg, zone_bags
+from courseplan.stages.crews.raceday import split_contiguous
 from courseplan.stages.logistics import packages_for
 
 

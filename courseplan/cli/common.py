@@ -13,6 +13,8 @@ import sys
 import click
 
 EXIT_INPUT = 2
+EXIT_SHORTFALL = 3
+"""`plan` wrote its outputs but the crews cannot do the plan in time; `check` found that."""
 EXIT_INTERRUPTED = 130
 
 

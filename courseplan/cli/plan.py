@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
 import click
 
-from courseplan.cli.common import debug_option, guarded
+from courseplan.cli.common import EXIT_SHORTFALL, debug_option, guarded
 
 
 def _input_options(f):
@@ -96,6 +97,10 @@ def plan_command(plan_file, out_dir, overwrite, quiet, debug, **kw):
         result = run(s, out_dir, overwrite=overwrite, progress=lambda name: status.update(f"{name}…"))
     if not quiet:
         render_result(result, out_dir)
+    if result.shortfall is not None:
+        click.echo(f"shortfall: the crews cannot do this plan in time (outputs written; exit {EXIT_SHORTFALL})",
+                   err=True)
+        sys.exit(EXIT_SHORTFALL)
 
 
 def render_result(result, out_dir: Path) -> None:
@@ -148,6 +153,11 @@ def check_command(plan_file, debug, **kw):
         click.echo(f"warning: {n}")
     for n in result.notes:
         click.echo(f"warning: {n}")
+    if result.shortfall is not None:
+        sf = result.shortfall
+        click.echo(f"problem: {sf['crews']} crew(s) cannot do this plan in time; "
+                   f"{sf['crews_needed'] or 'more than 50'} crews would (see the SHORTFALL warning)")
+        sys.exit(EXIT_SHORTFALL)
     click.echo(f"ok: {len(result.zones)} zones, {result.totals()['total_product_kg']:,.0f} kg of "
                f"{result.agent.label} (P50); nothing written")
 

@@ -68,6 +68,7 @@ def summary_dict(result) -> dict[str, Any]:
         "units": {c.name: c.unit for c in ALL_COLUMNS if c.unit != NO_UNIT},
         "notes": list(result.notes),
         "cautions": list(result.cautions),
+        "shortfall": getattr(result, "shortfall", None),
         "settings": result.settings.to_dict(),
         "zones": zones,
     }
@@ -75,6 +76,12 @@ def summary_dict(result) -> dict[str, Any]:
         out["schedule"] = result.schedule.to_dict() if result.schedule is not None else None
         out["passes"] = passes_table(result).to_dict("records")
     return _plain(out)
+
+
+def _leading(result) -> list[str]:
+    """The cautions, led by the crew shortfall when there is one (it must lead every output)."""
+    lead = [n for n in result.notes if n.startswith("SHORTFALL")]
+    return lead + list(result.cautions)
 
 
 def passes_table(result) -> pd.DataFrame:
@@ -142,7 +149,7 @@ def write_map(path: Path, result) -> None:
         ctx = context_from_raster(vals, result.context.transform, result.crs, kind=kind,
                                   sun_max=max(sun_max, 1e-9))
     html = render_map_html(result.zones, result.course, title=result.settings.plan.name,
-                           agent_label=result.agent.label, cautions=list(result.cautions),
+                           agent_label=result.agent.label, cautions=_leading(result),
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
                            units={c.name: unit(c.name) for c in ALL})
@@ -187,7 +194,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         summary = summary_dict(result)
         write_text_atomic(tmp / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
         kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
-                  cautions=list(result.cautions))
+                  cautions=_leading(result))
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
         old = None

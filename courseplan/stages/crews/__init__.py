@@ -17,69 +17,7 @@ import pandas as pd
 
 from courseplan.errors import InputError, SettingsError
 from courseplan.settings import PlanSettings, minutes_of
-
-
-def split_contiguous(work: np.ndarray, n: int) -> list[tuple[int, int]]:
-    """Cut a sequence into at most ``n`` runs of consecutive items with balanced sums.
-
-    Exact dynamic programme on prefix sums: first minimise the largest run's sum (the
-    linear-partition problem [1]_), then, among the splits reaching it, maximise the smallest run's
-    sum.  With fewer items than ``n`` every item is its own run.
-
-    Parameters
-    ----------
-    work
-        Non-negative work per item, in order [any unit].
-    n
-        Number of runs wanted (≥ 1).
-
-    Returns
-    -------
-    list of (start, stop)
-        Half-open index ranges, in order, covering ``0 … len(work)``; empty for no items.
-
-    References
-    ----------
-    .. [1] S. S. Skiena, *The Algorithm Design Manual*, 2nd ed., Springer, 2008, §8.5,
-       doi:10.1007/978-1-84800-070-4.
-    """
-    w = np.asarray(work, dtype=float)
-    m = w.size
-    if m == 0:
-        return []
-    k_runs = max(1, min(int(n), m))
-    prefix = np.concatenate([[0.0], np.cumsum(w)])
-    inf = np.inf
-    # best_max[k, j]: least possible largest run when the first j items form k runs
-    best_max = np.full((k_runs + 1, m + 1), inf)
-    best_max[0, 0] = 0.0
-    for k in range(1, k_runs + 1):
-        for j in range(k, m + 1):
-            i = np.arange(k - 1, j)  # last run is items i … j-1
-            cand = np.maximum(best_max[k - 1, i], prefix[j] - prefix[i])
-            best_max[k, j] = cand.min()
-    limit = best_max[k_runs, m]
-    tol = 1e-9 * max(1.0, prefix[-1])
-    # best_min[k, j]: largest possible smallest run under the limit; arg for the back-track
-    best_min = np.full((k_runs + 1, m + 1), -inf)
-    best_min[0, 0] = inf
-    arg = np.zeros((k_runs + 1, m + 1), dtype=int)
-    for k in range(1, k_runs + 1):
-        for j in range(k, m + 1):
-            i = np.arange(k - 1, j)
-            run = prefix[j] - prefix[i]
-            cand = np.where(run <= limit + tol, np.minimum(best_min[k - 1, i], run), -inf)
-            a = int(np.argmax(cand))
-            best_min[k, j] = cand[a]
-            arg[k, j] = i[a]
-    cuts: list[tuple[int, int]] = []
-    j = m
-    for k in range(k_runs, 0, -1):
-        i = int(arg[k, j])
-        cuts.append((i, j))
-        j = i
-    return cuts[::-1]
-
+from courseplan.stages.crews.raceday import per_pass_dose, split_contiguous, spread_rate_m2_min
 
 
 def hhmm(minutes: float) -> str:
@@ -87,7 +25,6 @@ def hhmm(minutes: float) -> str:
     day = mins // (24 * 60)
     text = f"{(mins // 60) % 24:02d}:{mins % 60:02d}"
     return text + (f" (+{day} d)" if day > 0 else f" ({day} d)" if day < 0 else "")
-
 
 
 def pass_schedule(passes: int, runs: int, first_start_min: float, window_end_min: float
@@ -180,7 +117,8 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
     if plan_p90_kg is not None and kg90.sum() > 0:
         scale = min(1.0, max(plan_p90_kg, kg.sum()) / kg90.sum())
     bags = np.where(treated, zone_bags(np.maximum(kg90 * scale, kg), margin, bag_kg), 0)
-    spread = np.where(treated, area * passes / lg.spread_rate_m2_min, 0.0)
+    rate = spread_rate_m2_min(settings, per_pass_dose(out, passes))
+    spread = np.where(treated, area * passes / rate, 0.0)
     work = spread + bags * lg.carry_min_per_bag
     dose = out["dose_g_m2"].to_numpy(dtype=float)
     per_pass = np.where(treated, np.nan_to_num(dose) / np.maximum(passes, 1), 0.0)
@@ -220,9 +158,9 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
             crew_passes = int(passes[idx].max())
             before, _ = pass_schedule(crew_passes, n_runs, 0.0, 1.0)
             carry = float(bags[idx].sum() * lg.carry_min_per_bag)  # all bags come in on the first pass
-            t_pre = carry + sum(float((area[idx] * (passes[idx] >= p)).sum()) / lg.spread_rate_m2_min
+            t_pre = carry + sum(float((area[idx] / rate[idx] * (passes[idx] >= p)).sum())
                                 for p in range(1, before + 1))
-            t_first = carry + float(area[idx].sum()) / lg.spread_rate_m2_min
+            t_first = carry + float((area[idx] / rate[idx]).sum())
             res.append((t_pre, t_first, before, crew_passes))
         return res
 
@@ -310,10 +248,8 @@ CARRY_LIMIT_KG = 25.0
 sack size of road salt and fertiliser)."""
 
 
-
 _REQUIRED = ("zone_id", "course_order", "area_m2", "dose_g_m2", "dose_p90_g_m2", "passes", "product_kg",
              "product_p90_kg", "nitrogen_kg", "chloride_kg")
-
 
 
 def crew_bag_kg(settings: PlanSettings, agent: Any) -> float:
@@ -326,7 +262,6 @@ def crew_bag_kg(settings: PlanSettings, agent: Any) -> float:
                             where="[logistics] bag_kg", fix="set bag_kg, e.g. bag_kg = 25")
     carry = [s for s in sizes if s <= CARRY_LIMIT_KG]
     return max(carry) if carry else min(sizes)
-
 
 
 def zone_bags(p90_kg: np.ndarray, margin_pct: float, bag_kg: float) -> np.ndarray:
@@ -352,76 +287,6 @@ def zone_bags(p90_kg: np.ndarray, margin_pct: float, bag_kg: float) -> np.ndarra
 
 
 # ---------------------------------------------------------------- crews before dosing: who spreads where, when
-
-
-def assign_crews(zones: Any, settings: PlanSettings) -> Any:
-    """Split the zones among the crews and set each crew's order of work (the ``crews`` stage).
-
-    Zones are cut, in course order, into at most ``[logistics] crews`` contiguous runs of balanced
-    spreading time (:func:`split_contiguous`).  Inside a crew the shaded zones come first and the
-    sunny ones last (ascending sun share, then course order), so the zones the sun softens first are
-    salted last and hold longest into the run (dosing-model, "Timing from the race").
-
-    Adds ``crew``, ``work_order`` and ``spread_min`` (minutes one pass takes at
-    ``[logistics] spread_rate_m2_min``).
-    """
-    lg = settings.logistics
-    out = zones.copy()
-    area = out["area_m2"].to_numpy(dtype=float)
-    spread = area / lg.spread_rate_m2_min
-    order_idx = np.argsort(out["course_order"].to_numpy(), kind="stable")
-    runs = split_contiguous(spread[order_idx], lg.crews)
-    crew = np.zeros(len(out), dtype=np.int64)
-    work = np.zeros(len(out), dtype=np.int64)
-    sun = out["sun_fraction"].to_numpy(dtype=float) if "sun_fraction" in out else np.zeros(len(out))
-    sun = np.where(np.isfinite(sun), sun, out["raster_irradiation_wh_m2"].to_numpy(dtype=float)
-                   if "raster_irradiation_wh_m2" in out else 0.0)
-    for c, (a, b) in enumerate(runs, start=1):
-        idx = order_idx[a:b]
-        crew[idx] = c
-        key = np.lexsort((out["course_order"].to_numpy()[idx], np.nan_to_num(sun[idx])))
-        work[idx[key]] = np.arange(1, len(idx) + 1)
-    out["crew"] = crew
-    out["work_order"] = work
-    out["spread_min"] = spread
-    return out
-
-
-def time_pass(zones: Any, need: np.ndarray, *, deadline, opens, tau_min: float) -> tuple[Any, np.ndarray]:
-    """When each crew spreads the zones that need this pass, working back from the deadline.
-
-    Each crew walks its zones in ``work_order`` (sunny last); the last one is finished τ before the
-    deadline (the salt has acted when the run or the inspection starts), the others before it, one
-    after the other.  In a break (``opens`` given: the end of the previous run) nobody may be on the
-    course before it opens, so zones whose spreading would have to start earlier are not reached:
-    they get no pass and are flagged (the sunny zones, last in the order, are the ones reached).
-
-    Returns
-    -------
-    tuple
-        (spread times as a tz-aware ``DatetimeIndex``, NaT where no pass; flags of zones not reached).
-    """
-    n = len(zones)
-    need = np.asarray(need, dtype=bool)
-    crew = zones["crew"].to_numpy()
-    order = zones["work_order"].to_numpy()
-    mins = zones["spread_min"].to_numpy(dtype=float)
-    finish_by = deadline - pd.Timedelta(minutes=float(tau_min))
-    at: list = [pd.NaT] * n
-    missed = np.zeros(n, dtype=bool)
-    for c in np.unique(crew[need]):
-        idx = np.flatnonzero(need & (crew == c))
-        idx = idx[np.argsort(order[idx], kind="stable")][::-1]  # last in the order first, backwards
-        t_done = finish_by
-        for i in idx:
-            start = t_done - pd.Timedelta(minutes=float(mins[i]))
-            if opens is not None and start < opens:
-                missed[i] = True
-                continue
-            at[i] = t_done
-            t_done = start
-    return pd.DatetimeIndex(at).tz_convert(deadline.tz) if any(pd.notna(x) for x in at) else \
-        pd.DatetimeIndex([pd.NaT] * n, tz=deadline.tz), missed
 
 
 def _times_from_passes(crews: Any, zones: Any, passes: Any) -> None:
