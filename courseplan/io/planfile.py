@@ -10,9 +10,20 @@ from courseplan.io.files import check_readable
 from courseplan.settings import PlanSettings, settings_from_mapping
 
 
+_READ: list[Path] = []
+
+
+def plan_files_read() -> tuple[Path, ...]:
+    """The plan files read in this process (the outputs must never replace their folder)."""
+    return tuple(_READ)
+
+
 def read_plan(path: Path | str) -> PlanSettings:
     """Read and validate a plan file; relative paths resolve against its folder."""
     p = check_readable(Path(path), "plan")
+    if p not in _READ:
+        _READ.append(p)
+        del _READ[:-8]
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as exc:
