@@ -204,3 +204,63 @@ class OutputLock:
             except OSError:
                 pass
             self._held = False
+
+
+def read_text(path: Path, what: str) -> str:
+    """The text of a UTF-8 file (a byte-order mark is dropped), or one line naming the encoding problem.
+
+    Raises
+    ------
+    InputError
+        The file is not UTF-8: the message names the first bad byte, its line, what it would be in
+        Windows-1252 (the usual culprit: Excel's "CSV" on Windows), and says to save as UTF-8.
+    """
+    from courseplan.errors import InputError
+
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise MissingInputError(f"{what} file cannot be read ({exc.strerror})", where=str(p),
+                                fix="check the file's permissions") from None
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise InputError(f"the {what} file is UTF-16 text, not UTF-8", where=str(p),
+                         fix="save it as UTF-8 (in Excel: Save As → CSV UTF-8)")
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        bad = data[exc.start:exc.start + 1]
+        line = data[:exc.start].count(b"\n") + 1
+        try:
+            guess = data.decode("cp1252")
+            ch = bad.decode("cp1252")
+            hint = f"; it looks like Windows-1252 (the byte would be {ch!r})" if guess else ""
+        except UnicodeDecodeError:
+            hint = ""
+        raise InputError(f"the {what} file is not UTF-8 text (byte 0x{bad.hex()} on line {line}{hint})",
+                         where=str(p), fix="save it as UTF-8 (in Excel: Save As → CSV UTF-8)") from None
+
+
+def sniff_delimiter(text: str, default: str = ",") -> str:
+    """The field separator of a CSV text: comma, semicolon or tab, judged by the header line.
+
+    A semicolon-separated file is what spreadsheets write where the comma is the decimal mark;
+    its numbers then use decimal commas (see :func:`decimal_number`).
+    """
+    import csv
+
+    head = next((ln for ln in text.splitlines() if ln.strip()), "")
+    try:
+        return csv.Sniffer().sniff(head, delimiters=",;\t").delimiter
+    except csv.Error:
+        counts = {d: head.count(d) for d in (",", ";", "\t")}
+        best = max(counts, key=lambda d: counts[d])
+        return best if counts[best] else default
+
+
+def decimal_number(text: str) -> float:
+    """``float`` that also reads a decimal comma (``1,5`` → 1.5, ``-0,25`` → -0.25)."""
+    s = text.strip()
+    if s.count(",") == 1 and "." not in s:
+        s = s.replace(",", ".")
+    return float(s)
