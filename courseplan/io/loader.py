@@ -172,6 +172,73 @@ def check_forecast_gaps(fc, settings: PlanSettings, where: str) -> None:
                              fix=f"give rows at most {MAX_FORECAST_GAP_H:g} h apart over the race day")
 
 
+#: Observations dated more than this many days from the race day are left out (all of them: refused).
+MAX_OBS_AGE_DAYS = 2.0
+#: Observations farther than this from the course are refused [m].
+MAX_OBS_DISTANCE_M = 1000.0
+
+
+def check_observation_dates(obs, settings: PlanSettings, where: str, notes: list[str]):
+    """Leave out observations dated more than :data:`MAX_OBS_AGE_DAYS` from the race day (with a note)."""
+    import pandas as pd
+
+    if settings.plan.date is None or len(obs) == 0:
+        return obs
+    tz = settings.plan.timezone
+    try:
+        d0 = pd.Timestamp(settings.plan.date).tz_localize(tz)
+    except Exception:  # a bad date or zone is reported by the settings check
+        return obs
+    d1 = d0 + pd.Timedelta(days=1)
+    lim = pd.Timedelta(days=MAX_OBS_AGE_DAYS)
+    t = pd.DatetimeIndex(obs["time"])
+    far = np.asarray((t < d0 - lim) | (t > d1 + lim))
+    if not far.any():
+        return obs
+    n, m = int(far.sum()), len(obs)
+    span = f"{t.min().tz_convert(tz):%Y-%m-%d} … {t.max().tz_convert(tz):%Y-%m-%d}"
+    if n == m:
+        raise InputError(f"all {m} observations are dated more than {MAX_OBS_AGE_DAYS:g} days from the race day "
+                         f"{settings.plan.date} ({span})", where=where,
+                         fix="check [plan] date and the observations' dates, or leave the observations out")
+    notes.append(f"{where}: {n} of {m} observations are dated more than {MAX_OBS_AGE_DAYS:g} days from the race "
+                 f"day {settings.plan.date} and were left out")
+    return obs[~far].reset_index(drop=True)
+
+
+def check_observation_places(obs, geom, crs: CRS, xy_crs: str | None, where: str) -> None:
+    """Refuse observations more than :data:`MAX_OBS_DISTANCE_M` from the course; suggest swapped lon/lat."""
+    import shapely
+
+    pts = np.asarray(obs.geometry.values)
+    d = shapely.distance(geom, pts)
+    far = d > MAX_OBS_DISTANCE_M
+    if not far.any():
+        return
+    n, m = int(far.sum()), len(obs)
+    ids = ", ".join(str(v) for v in obs.loc[far, "obs_id"].head(5))
+    what = (f"{n} of {m} observations lie more than {MAX_OBS_DISTANCE_M / 1000:g} km from the course (up to "
+            f"{float(d[far].max()) / 1000:,.1f} km; {ids})")
+    fix = "check their positions and CRS, or drop those rows"
+    try:
+        src = CRS.from_user_input(xy_crs) if xy_crs else CRS.from_epsg(4326)
+        back = Transformer.from_crs(crs, src, always_xy=True)
+        fwd = Transformer.from_crs(src, crs, always_xy=True)
+        fx, fy = shapely.get_x(pts[far]), shapely.get_y(pts[far])
+        a, b = back.transform(fx, fy)
+        sx, sy = fwd.transform(b, a)
+        ok = np.isfinite(sx) & np.isfinite(sy)
+        if ok.all():
+            ds = shapely.distance(geom, shapely.points(sx, sy))
+            if (ds <= MAX_OBS_DISTANCE_M).all():
+                cols = "x and y" if xy_crs else "lon and lat"
+                what += f"; with {cols} swapped they lie on the course"
+                fix = f"swap the {cols} columns (or their values in those rows)"
+    except Exception:  # no swap suggestion when the swapped coordinates do not transform
+        pass
+    raise InputError(what, where=where, fix=fix)
+
+
 def _reproject_geom(geom, src: CRS, dst: CRS):
     import shapely
     from shapely.ops import transform as sh_transform
@@ -297,6 +364,10 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
         obs = attempt(lambda: read_observations(ins.observations, crs, timezone=settings.plan.timezone,
                                                 xy_crs=ins.observations_crs))
         sources["observations"] = str(ins.observations)
+        if obs is not None:
+            obs = attempt(lambda: check_observation_dates(obs, settings, str(ins.observations), notes))
+        if obs is not None:
+            attempt(lambda: check_observation_places(obs, geom, crs, ins.observations_crs, str(ins.observations)))
     fc = None
     if ins.forecast:
         from courseplan.io.forecast import read_forecast_csv
