@@ -15,9 +15,10 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     settings
         Validated settings, or the path of a plan file.
     out_dir
-        Output folder (must not exist unless *overwrite*).
+        Output folder (must not exist unless *overwrite*); never a folder holding an input file.
     overwrite
-        Replace an existing output folder (only once the new outputs are complete).
+        Replace an existing output folder that courseplan wrote (it holds the marker file), only once
+        the new outputs are complete.  A lock beside the folder keeps a second run out meanwhile.
     progress
         Optional callable ``progress(stage_name)``.
 
@@ -26,20 +27,39 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     PlanResult
         The result that was written.
     """
-    from courseplan.io.files import refuse_existing
+    from courseplan.io.files import OutputLock, refuse_existing, refuse_foreign_folder, refuse_out_over_inputs
     from courseplan.io.loader import load_inputs
     from courseplan.io.outputs import write_outputs
     from courseplan.io.planfile import read_plan
     from courseplan.pipeline import run_plan
 
+    plan_file = None
     if not isinstance(settings, PlanSettings):
+        plan_file = Path(settings)
         settings = read_plan(settings)
     out = Path(out_dir)
+    refuse_out_over_inputs(out, input_paths(settings, plan_file))
     refuse_existing(out, overwrite, kind="folder")
-    inputs = load_inputs(settings)
-    result = run_plan(settings, inputs, progress=progress)
-    write_outputs(result, out, overwrite=overwrite)
+    refuse_foreign_folder(out)
+    with OutputLock(out):
+        inputs = load_inputs(settings)
+        result = run_plan(settings, inputs, progress=progress)
+        write_outputs(result, out, overwrite=overwrite)
     return result
+
+
+def input_paths(settings: PlanSettings, plan_file: Path | None = None) -> dict[str, Path]:
+    """Every input file a plan reads (the plan files read in this process included), by what it is."""
+    from courseplan.io.planfile import plan_files_read
+
+    ins = settings.inputs
+    named = {"course": ins.course, "sun raster": ins.sun, "DEM": ins.dem, "observations": ins.observations,
+             "forecast": ins.forecast, "centreline": ins.centreline, "markers": ins.markers,
+             "agents file": ins.agents}
+    paths = {k: Path(v) for k, v in named.items() if v is not None}
+    for i, p in enumerate([*([plan_file] if plan_file else []), *plan_files_read()]):
+        paths[f"plan file{'' if i == 0 else f' {i + 1}'}"] = Path(p)
+    return paths
 
 
 def check(settings: PlanSettings):

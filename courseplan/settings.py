@@ -52,8 +52,13 @@ class Inputs:
     course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads")
     course_feature: str | None = _f(None, "which feature to use when the course file holds several "
                                           "polygons: a value of the `name` field or a 0-based index")
+    course_layer: str | None = _f(None, "which layer of a GeoPackage (or other multi-layer file) holds the "
+                                        "course, when several hold polygons")
     sun: Path | None = _f(None, "sun/shade raster (GeoTIFF)")
     sun_encoding: str = _f("fraction", "what the sun raster holds", choices=SUN_ENCODINGS)
+    sun_band: int | None = _f(None, "band of the sun raster to read (default: band 1, or for a raster "
+                                    "written by `courseplan sun` band 1 for fraction and band 2 for wh_m2)",
+                              lo=1, hi=10000)
     dem: Path | None = _f(None, "terrain model (GeoTIFF, heights in metres)")
     observations: Path | None = _f(None, "field observations (CSV or a vector point file)")
     observations_crs: str | None = _f(None, "CRS of x/y columns in an observations CSV (lon/lat columns "

@@ -61,7 +61,7 @@ def test_fresh_run_leaves_only_the_output(tiny, tmp_path):
     res = run([*tiny, "--out", out])
     assert res.exit_code == 0, res.output
     assert sorted(p.name for p in out.iterdir()) == sorted(
-        ["zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf"])
+        ["zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf", ".courseplan-output"])
     assert leftovers(out) == []
 
 
@@ -91,6 +91,7 @@ def test_overwrite_replaces_the_folder(tiny, tmp_path):
     out.mkdir()
     (out / "stale.txt").write_text("old plan")
     (out / "summary.json").write_text("{}")
+    (out / ".courseplan-output").write_text("")  # an earlier run's folder: --overwrite may replace it
     res = run([*tiny, "--out", out, "--overwrite"])
     assert res.exit_code == 0, res.output
     assert not (out / "stale.txt").exists()
@@ -129,6 +130,7 @@ def test_interrupted_overwrite_keeps_the_old_folder(tiny, tmp_path, monkeypatch)
     out = tmp_path / "out"
     out.mkdir()
     (out / "summary.json").write_text('{"old": true}')
+    (out / ".courseplan-output").write_text("")
     before = snapshot(out)
     monkeypatch.setattr("courseplan.io.outputs.write_crews_pdf", _interrupt)
     res = run([*tiny, "--out", out, "--overwrite"])

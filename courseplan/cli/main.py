@@ -8,9 +8,13 @@ that ``courseplan --help`` is instant.
 
 from __future__ import annotations
 
+import sys
+
 import click
 
 from courseplan.cli.agents import agents_command
+from courseplan.cli.common import (EXIT_INTERRUPTED, INTERRUPTED_LINE, install_signal_handlers,
+                                   restore_signal_handlers)
 from courseplan.cli.plan import check_command, plan_command
 from courseplan.cli.sun import sun_command
 
@@ -29,3 +33,23 @@ def main() -> None:
 
 for _cmd in (plan_command, check_command, sun_command, agents_command):
     main.add_command(_cmd)
+
+
+def entry(argv=None) -> None:
+    """The ``courseplan`` program: the click group, with Ctrl-C before any command starts (while the
+    modules load or the arguments are parsed) also one ``interrupted`` line and exit 130.
+    """
+    old = install_signal_handlers()
+    try:
+        rv = main.main(args=argv, prog_name="courseplan", standalone_mode=False)
+    except (KeyboardInterrupt, click.Abort):
+        click.echo(INTERRUPTED_LINE, err=True)
+        sys.exit(EXIT_INTERRUPTED)
+    except click.exceptions.Exit as exc:
+        sys.exit(exc.exit_code)
+    except click.ClickException as exc:
+        exc.show()
+        sys.exit(exc.exit_code)
+    finally:
+        restore_signal_handlers(old)
+    sys.exit(rv if isinstance(rv, int) else 0)

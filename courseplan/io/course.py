@@ -41,7 +41,7 @@ def check_coordinates_match_crs(bounds: tuple[float, float, float, float], crs: 
                            fix="set the file's CRS to EPSG:4326, e.g. with ogr2ogr -a_srs EPSG:4326")
 
 
-def read_course(path: Path, feature: str | None = None) -> Course:
+def read_course(path: Path, feature: str | None = None, layer: str | None = None) -> Course:
     """Read one course polygon.
 
     Parameters
@@ -51,6 +51,9 @@ def read_course(path: Path, feature: str | None = None) -> Course:
     feature
         Which feature to take when the file holds several polygons: a value of a ``name`` field or
         a 0-based index.
+    layer
+        Which layer to read from a multi-layer file (GeoPackage): needed when several layers hold
+        polygons, which are then listed by name.
 
     A GeoJSON file (RFC 7946, with or without the legacy ``crs`` member of the 2008 GeoJSON
     specification) is parsed with :mod:`json` and :func:`shapely.geometry.shape`, without GDAL: that
@@ -64,9 +67,9 @@ def read_course(path: Path, feature: str | None = None) -> Course:
         With one line saying what is wrong and how to fix it.
     """
     p = check_readable(path, "course")
-    table = _read_geojson(p) if p.suffix.lower() in (".geojson", ".json") else None
+    table = _read_geojson(p) if p.suffix.lower() in (".geojson", ".json") and layer is None else None
     if table is None:
-        table = _read_with_gdal(p)
+        table = _read_with_gdal(p, layer)
     crs, columns, geoms, props = table
     if crs is None:
         raise CRSError("the course file has no CRS", where=str(p),
@@ -95,14 +98,39 @@ def read_course(path: Path, feature: str | None = None) -> Course:
 Table = tuple["CRS | None", list[str], list["BaseGeometry | None"], list[dict]]
 
 
-def _read_with_gdal(p: Path) -> Table:
+def _choose_layer(p: Path, layer: str | None) -> str | None:
+    """The layer to read: the one asked for, the only polygon layer, or None for a one-layer file."""
+    import pyogrio
+
+    try:
+        layers = [(str(n), str(t or "")) for n, t in pyogrio.list_layers(p)]
+    except Exception:  # not a multi-layer file GDAL lists: let read_file say what is wrong
+        return layer
+    names = [n for n, _ in layers]
+    if layer is not None:
+        if layer not in names:
+            raise GeometryError(f"the course file has no layer {layer!r} (layers: {', '.join(names)})",
+                                where=str(p), fix="set [inputs] course_layer to one of the names listed")
+        return layer
+    if len(layers) <= 1:
+        return None
+    polys = [n for n, t in layers if "polygon" in t.lower() or t.lower() in ("", "unknown")]
+    if len(polys) > 1:
+        raise GeometryError(f"the course file holds {len(polys)} polygon layers ({', '.join(polys[:12])})",
+                            where=str(p), fix=f'pick one with [inputs] course_layer = "{polys[0]}" (or '
+                                              f"--set inputs.course_layer={polys[0]})")
+    return polys[0] if polys else None
+
+
+def _read_with_gdal(p: Path, layer: str | None = None) -> Table:
     """CRS, property names, geometries and properties of a vector file read by GDAL (pyogrio)."""
     import geopandas as gpd
 
+    layer = _choose_layer(p, layer)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            gdf = gpd.read_file(p)
+            gdf = gpd.read_file(p, layer=layer) if layer is not None else gpd.read_file(p)
     except Exception as exc:  # pyogrio raises several types for unreadable data
         raise InputError(f"cannot read the course as a vector file ({type(exc).__name__}: "
                          f"{str(exc).splitlines()[0] if str(exc) else 'no detail'})", where=str(p),

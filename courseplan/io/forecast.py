@@ -2,7 +2,11 @@
 
 Columns: ``time`` (ISO 8601, local time without offset or with an offset such as ``+01:00``),
 ``air_temp_c`` [°C], ``rh_pct`` [%], ``wind_m_s`` [m/s], ``cloud_fraction`` [0–1].  Every row is
-checked; all problems are reported at once with their line numbers.  The result goes to
+checked; all problems are reported at once with their line numbers.  The file may be UTF-8 with or
+without a byte-order mark, comma- or semicolon-separated (then with decimal commas, ``1,5``).
+Naive local times on a daylight-saving day are resolved in the plan's time zone: the repeated
+hour of the autumn change by the file's order, a time the spring change skips is refused.
+Air temperatures above 35 °C, or all between 30 and 80, look like °F and are refused.  The result goes to
 :func:`courseplan.stages.weather.weather_from_table`.
 """
 
@@ -15,11 +19,12 @@ from pathlib import Path
 import pandas as pd
 
 from courseplan.errors import InputError, MissingInputError
+from courseplan.io.files import decimal_number, read_text, sniff_delimiter
 
 __all__ = ["read_forecast_csv", "FORECAST_RANGES"]
 
 FORECAST_RANGES: dict[str, tuple[float, float, str]] = {
-    "air_temp_c": (-50.0, 45.0, "°C"),
+    "air_temp_c": (-50.0, 35.0, "°C"),
     "rh_pct": (0.0, 100.0, "%"),
     "wind_m_s": (0.0, 60.0, "m/s"),
     "cloud_fraction": (0.0, 1.0, "fraction 0–1 (octas / 8)"),
@@ -29,13 +34,42 @@ FORECAST_RANGES: dict[str, tuple[float, float, str]] = {
 _MAX_LISTED = 8
 
 
-def read_forecast_csv(path: str | Path) -> pd.DataFrame:
+def _localize(times: list[dt.datetime], lines: list[int], timezone: str, problems: list[str]) -> list:
+    """Naive local times → UTC, the autumn's repeated hour by file order, the spring's gap refused."""
+    from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+    try:
+        tz = ZoneInfo(timezone)
+    except (ZoneInfoNotFoundError, ValueError):
+        return times  # the settings check names the bad time zone
+    out: list[dt.datetime] = []
+    prev: dt.datetime | None = None
+    for t, ln in zip(times, lines, strict=True):
+        a = t.replace(tzinfo=tz, fold=0)
+        b = t.replace(tzinfo=tz, fold=1)
+        ua, ub = a.astimezone(dt.UTC), b.astimezone(dt.UTC)
+        if ua.astimezone(tz).replace(tzinfo=None) != t:
+            problems.append(f"line {ln}: time {t:%Y-%m-%d %H:%M} does not exist in {timezone} (the clocks "
+                            "skip it when summer time starts); give the times with offsets or drop the row")
+            continue
+        u = ua
+        if ua != ub and prev is not None and prev >= ua:
+            u = ub  # the second pass through the repeated hour, as the file's order says
+        out.append(u)
+        prev = u
+    return out
+
+
+def read_forecast_csv(path: str | Path, timezone: str | None = None) -> pd.DataFrame:
     """Read and validate an hourly forecast CSV.
 
     Parameters
     ----------
     path
-        The CSV file (UTF-8, comma-separated, one header row).
+        The CSV file (UTF-8, comma- or semicolon-separated, one header row).
+    timezone
+        IANA zone of naive local times; when given they come back as UTC (daylight-saving days
+        resolved, see the module notes), else naive.
 
     Returns
     -------
@@ -55,11 +89,9 @@ def read_forecast_csv(path: str | Path) -> pd.DataFrame:
     if not p.is_file():
         raise MissingInputError(f"forecast file {p} does not exist", where="[inputs] forecast",
                                 fix="check the path (relative paths start at the plan file's folder)")
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"cannot read forecast file: {exc}", where=str(p)) from None
-    rows = list(csv.reader(text.splitlines()))
+    text = read_text(p, "forecast")
+    delim = sniff_delimiter(text)
+    rows = list(csv.reader(text.splitlines(), delimiter=delim))
     if not rows:
         raise InputError("forecast file is empty", where=str(p), fix="add a header row and hourly rows")
     header = [h.strip() for h in rows[0]]
@@ -90,13 +122,14 @@ def read_forecast_csv(path: str | Path) -> pd.DataFrame:
         for c, (lo, hi, unit) in FORECAST_RANGES.items():
             raw = row[col[c]].strip()
             try:
-                v = float(raw)
+                v = decimal_number(raw) if delim != "," else float(raw)
             except ValueError:
                 problems.append(f"line {ln}: {c} {raw!r} is not a number")
                 ok = False
                 continue
             if not lo <= v <= hi:
-                problems.append(f"line {ln}: {c} {v:g} is outside {lo:g}–{hi:g} {unit}")
+                hint = " (°F? give °C)" if c == "air_temp_c" and v > hi else ""
+                problems.append(f"line {ln}: {c} {v:g} is outside {lo:g}–{hi:g} {unit}{hint}")
                 ok = False
             vals[c] = v
         if ok:
@@ -109,6 +142,13 @@ def read_forecast_csv(path: str | Path) -> pd.DataFrame:
         problems.append("some times carry an offset and some do not; give all in the same form")
     if not times and not problems:
         problems.append("no data rows")
+    temps = values["air_temp_c"]
+    if len(temps) >= 2 and all(30.0 <= v <= 80.0 for v in temps) and not problems:
+        problems.append(f"every air_temp_c lies between 30 and 80 ({min(temps):g} … {max(temps):g}): °F? "
+                        "air_temp_c is in °C: convert with (°F − 32) × 5/9")
+    if timezone is not None and aware == {False} and not problems:
+        times = _localize(times, lines, timezone, problems)
+        aware = {True}
     if not problems:
         seen: dict[dt.datetime, int] = {}
         for t, ln in zip(times, lines, strict=True):

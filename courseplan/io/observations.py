@@ -5,7 +5,8 @@ is local time in ``[plan] timezone``), position as ``lon``/``lat`` (WGS84) or ``
 ``[inputs] observations_crs``) or the file's point geometry, ``wetness`` (dry, moist, wet, very-wet,
 soaked: Fierz et al. 2009) and/or ``lwc_pct`` (liquid water, % by volume), ``snow_temp_c``,
 ``density_kg_m3``, and optional ``grain`` (code of Fierz et al. 2009), ``hand_hardness`` (1–6) and
-``note``.  A bad row is reported with its line number and never dropped silently: any bad row
+``note``.  A CSV may be UTF-8 with or without a byte-order mark, comma- or semicolon-separated
+(then with decimal commas).  A bad row is reported with its line number and never dropped silently: any bad row
 stops the plan, and all problems are listed at once.
 """
 
@@ -19,7 +20,7 @@ import pandas as pd
 from pyproj import CRS, Transformer
 
 from courseplan.errors import CRSError, InputError, ObservationError
-from courseplan.io.files import check_readable
+from courseplan.io.files import check_readable, read_text, sniff_delimiter
 from courseplan.physics.snow import WETNESS_NAMES
 
 ICE_DENSITY = 916.7  # kg/m³ at 0 °C, IAPWS-06 (Feistel & Wagner 2006)
@@ -60,8 +61,11 @@ def read_observations(path: Path, work_crs: CRS, *, timezone: str = "UTC", xy_cr
     src_crs = None
     try:
         if is_csv:
-            sep = "\t" if p.suffix.lower() == ".tsv" else ","
-            df = pd.read_csv(p, dtype=str, keep_default_na=False, sep=sep, skipinitialspace=True)
+            import io
+
+            text = read_text(p, "observations")
+            sep = "\t" if p.suffix.lower() == ".tsv" else sniff_delimiter(text)
+            df = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, sep=sep, skipinitialspace=True)
         else:
             g = gpd.read_file(p)
             if g.crs is None:

@@ -3,7 +3,8 @@
 Everything is written into a fresh temporary folder beside the target and moved into place at
 the end, so an interrupted run (Ctrl-C, a full disk) leaves no half-written output; an existing
 output folder is refused unless ``overwrite`` is set, and then replaced only after the new one is
-complete.  Inputs are never opened for writing.
+complete, and only when it holds the marker file :data:`~courseplan.io.files.OUTPUT_MARKER` that
+every output folder gets (a folder courseplan did not write is never replaced).  Inputs are never opened for writing.
 """
 
 from __future__ import annotations
@@ -22,7 +23,8 @@ from courseplan import __version__
 from courseplan.columns import ALL as ALL_COLUMNS
 from courseplan.columns import NO_UNIT, unit
 from courseplan.errors import OutputError
-from courseplan.io.files import refuse_existing, write_bytes_atomic, write_text_atomic
+from courseplan.io.files import (OUTPUT_MARKER, refuse_existing, refuse_foreign_folder, write_bytes_atomic,
+                                 write_text_atomic)
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
 
@@ -180,6 +182,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
     """
     out_dir = Path(out_dir)
     refuse_existing(out_dir, overwrite, kind="folder")
+    refuse_foreign_folder(out_dir)
     parent = out_dir.resolve().parent
     try:
         parent.mkdir(parents=True, exist_ok=True)
@@ -197,8 +200,11 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
                   cautions=_leading(result))
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
+        write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
+                          "this folder\n", what="output marker")
         old = None
         if out_dir.exists():
+            refuse_foreign_folder(out_dir)
             old = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.old-", dir=parent))
             out_dir.rename(old / "x")
         tmp.rename(out_dir)

@@ -42,14 +42,80 @@ def open_raster_info(path: Path, what: str) -> dict:
         with rasterio.open(p) as ds:
             info = {"crs": CRS.from_user_input(ds.crs) if ds.crs else None, "bounds": tuple(ds.bounds),
                     "res": ds.res, "count": ds.count, "nodata": ds.nodata, "shape": (ds.height, ds.width),
-                    "descriptions": ds.descriptions}
+                    "descriptions": ds.descriptions, "units": ds.units, "transform": ds.transform}
     except rasterio.errors.RasterioIOError as exc:
         raise InputError(f"cannot read the {what} raster ({str(exc).splitlines()[0]})", where=str(p),
                          fix="give a GeoTIFF (or another raster GDAL reads)") from None
     if info["crs"] is None:
         raise CRSError(f"the {what} raster has no CRS", where=str(p),
                        fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
+    t = info["transform"]
+    if t.b != 0 or t.d != 0:
+        angle = math.degrees(math.atan2(t.d, t.a))
+        raise InputError(f"the {what} raster's grid is rotated (geotransform rotation terms {t.b:g}, {t.d:g}; "
+                         f"about {angle:.1f}°), which courseplan does not read", where=str(p),
+                         fix="warp it to a north-up grid first, e.g. gdalwarp IN.tif OUT.tif")
+    if t.e > 0:
+        raise InputError(f"the {what} raster is stored south-up (its rows run from south to north, "
+                         f"pixel height {t.e:g} > 0)", where=str(p),
+                         fix="write it north-up first, e.g. gdalwarp IN.tif OUT.tif")
+    if t.a < 0:
+        raise InputError(f"the {what} raster is stored east-to-west (pixel width {t.a:g} < 0)", where=str(p),
+                         fix="write it with columns running west to east, e.g. gdalwarp IN.tif OUT.tif")
     return info
+
+
+#: Vertical units of a DEM band (``gdalinfo`` "Unit Type") and their size in metres.
+DEM_UNITS = {"": 1.0, "m": 1.0, "metre": 1.0, "meter": 1.0, "metres": 1.0, "meters": 1.0,
+             "ft": 0.3048, "foot": 0.3048, "feet": 0.3048, "international foot": 0.3048,
+             "us-ft": 1200.0 / 3937.0, "us survey foot": 1200.0 / 3937.0, "ftus": 1200.0 / 3937.0,
+             "us_survey_foot": 1200.0 / 3937.0}
+
+
+def dem_unit_factor(info: dict, band: int, where: str) -> tuple[float, str]:
+    """Metres per DEM unit of *band* and the unit as written; unknown units are refused."""
+    units = info.get("units") or ()
+    unit = (units[band - 1] if band - 1 < len(units) else "") or ""
+    key = unit.strip().lower()
+    if key not in DEM_UNITS:
+        raise InputError(f"the DEM's heights are in {unit!r}, a unit courseplan does not know", where=where,
+                         fix="give heights in metres or feet (set the band unit, e.g. "
+                             "gdal_edit.py -units m FILE, if the values already are metres)")
+    return DEM_UNITS[key], unit
+
+
+def pick_sun_band(info: dict, encoding: str, band: int | None, where: str) -> int:
+    """Which band of a sun raster holds *encoding*.
+
+    A two-band raster written by ``courseplan sun`` (band descriptions :data:`BAND_NAMES`) gives
+    the fraction in band 1 and Wh/m² in band 2; ``[inputs] sun_band`` picks a band explicitly.
+    """
+    desc = tuple((d or "") for d in (info.get("descriptions") or ()))
+    ours = desc[: len(BAND_NAMES)] == BAND_NAMES
+    if band is not None:
+        if band > info["count"]:
+            raise InputError(f"the sun raster has {info['count']} band(s), [inputs] sun_band = {band} was asked "
+                             "for", where=where, fix=f"choose a band from 1 to {info['count']}")
+        if ours and band <= len(BAND_NAMES):
+            holds = ("fraction", "wh_m2")[band - 1]
+            if holds != encoding:
+                raise InputError(f"band {band} of this courseplan sun raster holds {BAND_NAMES[band - 1]}, "
+                                 f"but sun_encoding is {encoding!r}", where=where,
+                                 fix=f"set [inputs] sun_encoding = \"{holds}\" or choose the other band")
+        return band
+    if ours:
+        if encoding == "fraction":
+            return 1
+        if encoding == "wh_m2":
+            return 2
+        raise InputError("this courseplan sun raster holds sun_fraction (band 1) and irradiation_wh_m2 "
+                         f"(band 2), not {encoding!r}", where=where,
+                         fix='set [inputs] sun_encoding = "fraction" or "wh_m2"')
+    if info["count"] > 1:
+        raise InputError(f"the sun raster has {info['count']} bands ({', '.join(d or '?' for d in desc)}) and "
+                         "none is known to hold the sun", where=where,
+                         fix="set [inputs] sun_band to the band that holds it")
+    return 1
 
 
 def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs: CRS, *, what: str,
@@ -102,6 +168,10 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
             arr = ds.read(band, window=win, out_dtype="float32")
         if ds.nodata is not None and not np.isnan(ds.nodata):
             arr[arr == np.float32(ds.nodata)] = np.nan
+    if what == "DEM":
+        factor, _unit = dem_unit_factor(info, band, str(path))
+        if factor != 1.0:
+            arr = (arr * np.float32(factor)).astype(np.float32)
     if same:
         return Grid(values=arr, transform=wtransform, crs=work_crs, source=f"{path} band {band}")
     # Warp the window onto a grid in the working CRS with about the same cell size.
@@ -137,7 +207,8 @@ def read_dem(path, *, bounds: tuple[float, float, float, float] | None = None, b
     Parameters
     ----------
     path
-        DEM raster (GeoTIFF or anything GDAL reads) with a CRS; elevations in metres.
+        DEM raster (GeoTIFF or anything GDAL reads) with a CRS; elevations in metres, or in feet
+        when the band's unit says so (``ft``, ``foot``, ``us-ft``: converted to metres).
     bounds
         Optional (minx, miny, maxx, maxy) to read around, in ``bounds_crs`` (default: the DEM's CRS).
     bounds_crs
