@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 import shapely
 from affine import Affine
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 from pyproj import CRS
 from shapely.geometry import LineString, Polygon, box
@@ -16,7 +16,9 @@ from shapely.geometry import LineString, Polygon, box
 from courseplan.columns import ZONING
 from courseplan.errors import InputError, OverlapError
 from courseplan.geo.chainage import distance_along_course
+from courseplan.geo.geometry import clean_polygon
 from courseplan.grid import Grid
+from courseplan.io.course import SNAP_M
 from courseplan.settings import Zoning
 from courseplan.stages.zoning import ZoningInputs, zone_course
 
@@ -156,15 +158,24 @@ def random_polygons(draw):
     angles = sorted(draw(st.lists(st.floats(0, 2 * math.pi), min_size=n, max_size=n, unique=True)))
     radii = draw(st.lists(st.floats(20, 90), min_size=n, max_size=n))
     pts = [(100 + r * math.cos(a), 30 + r * math.sin(a) * 0.4) for a, r in zip(angles, radii, strict=True)]
-    poly = Polygon(pts)
-    if not poly.is_valid or poly.area < 300:
-        poly = shapely.make_valid(poly)
-        poly = max(getattr(poly, "geoms", [poly]), key=lambda g: g.area)
-    return poly
+    return course_as_read(Polygon(pts))
+
+
+def course_as_read(poly):
+    """The cleaning the course reader applies (1 mm snap, zero-width parts dropped), largest part."""
+    poly = clean_polygon(poly, SNAP_M)
+    return max(getattr(poly, "geoms", [poly]), key=lambda g: g.area) if not poly.is_empty else poly
+
+
+# Found by hypothesis: a valid needle 0.08 mm wide along the cell edge y = 30, which touches no
+# cell; the zones missed it by 2.4e-4 m² before the reader's cleaning.
+NEEDLE = Polygon([(126, 30), (119.999999999, 30.00008), (110.8060461173628, 36.731767878463174),
+                  (101.41474403335405, 37.97995989283244), (86.92712758272776, 23.945580037536573)])
 
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(poly=random_polygons(), seed=st.integers(0, 10_000), min_area=st.floats(20, 600))
+@example(poly=course_as_read(NEEDLE), seed=0, min_area=20.0)
 def test_zone_areas_sum_to_course_area(poly, seed, min_area):
     # Property: whatever the polygon and the sun pattern, zones tile the course exactly.
     rng = np.random.default_rng(seed)

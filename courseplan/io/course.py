@@ -89,7 +89,38 @@ def read_course(path: Path, feature: str | None = None) -> Course:
     name = str(names[k]) if name_col and names[k] is not None else p.stem
     check_coordinates_match_crs(tuple(geom.bounds), crs, str(p))
     geom, notes = repair_polygon(geom, str(p))
-    return Course(geometry=geom, crs=crs, name=name, source=str(p), warnings=tuple(notes))
+    geom, more = clean_course(geom, crs, str(p))
+    return Course(geometry=geom, crs=crs, name=name, source=str(p), warnings=tuple(notes + more))
+
+
+SNAP_M = 1e-3
+"""Grid the course vertices are snapped to in a projected CRS [CRS units, metres]; see
+:func:`courseplan.geo.geometry.clean_polygon`."""
+SNAP_DEG = 1e-8
+"""The same grid in a geographic CRS [°] (about 1.1 mm of latitude)."""
+
+
+def clean_course(geom: BaseGeometry, crs: CRS, where: str) -> tuple[BaseGeometry, list[str]]:
+    """Snap the course to a 1 mm grid and drop the zero-width spikes and slivers that collapse.
+
+    Zoning burns the course into the raster by GDAL's all-touched rule; a part a fraction of a
+    millimetre wide lying on a cell edge touches no cell and no zone could cover it, so the zones
+    would miss the course area by that sliver.  Returns the cleaned polygon and a warning when the
+    cleaning changed the area by more than a millionth or dropped a part.
+    """
+    from courseplan.geo.geometry import clean_polygon
+
+    g = clean_polygon(geom, SNAP_DEG if crs.is_geographic else SNAP_M)
+    if g.is_empty or g.area <= 0:
+        raise GeometryError("the course polygon is empty or has zero area after dropping zero-width parts",
+                            where=where, fix="draw the outline with at least three distinct corners")
+    notes = []
+    n0, n1 = shapely.get_num_geometries(geom), shapely.get_num_geometries(g)
+    change = abs(g.area - geom.area) / g.area
+    if n1 != n0 or change > 1e-6:
+        notes.append(f"{where}: zero-width spikes or slivers narrower than 1 mm dropped from the course "
+                     f"({n0 - n1} part(s), area changed by {100 * change:.4f} %)")
+    return g, notes
 
 
 Table = tuple["CRS | None", list[str], list["BaseGeometry | None"], list[dict]]
