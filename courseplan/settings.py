@@ -104,6 +104,9 @@ class Zoning:
                                        factory=lambda: [15.0, 25.0])
     min_zone_area_m2: float = _f(400.0, "zones smaller than this merge into the most similar neighbour",
                                  unit="m²", lo=0.0, hi=1e6)
+    min_zone_width_m: float = _f(15.0, "zones narrower than this (largest inscribed circle) merge into the "
+                                       "most similar neighbour (capped at half the course's local width; "
+                                       "0 = off); [P] common practice, no published source", unit="m", lo=0.0, hi=1000.0)
     section_length_m: float = _f(250.0, "course sections every this many metres from the start",
                                  unit="m", lo=10.0, hi=1e5)
     start_xy: list[float] | None = _f(None, "start point [x, y] in the course file's CRS (default: "
