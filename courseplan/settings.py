@@ -49,7 +49,8 @@ class PlanInfo:
 class Inputs:
     """``[inputs]``: the files a plan reads."""
 
-    course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads")
+    course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads (KML/KMZ "
+                                   "too), or a closed GPX track or route")
     course_feature: str | None = _f(None, "which feature to use when the course file holds several "
                                           "polygons: a value of the `name` field or a 0-based index")
     sun: Path | None = _f(None, "sun/shade raster (GeoTIFF)")
@@ -61,7 +62,11 @@ class Inputs:
     max_uncovered_pct: float = _f(5.0, "refuse a sun raster or DEM that leaves more than this share of the "
                                        "course without data", unit="%", lo=0.0, hi=100.0)
     forecast: Path | None = _f(None, "hourly forecast CSV; without it [forecast] constants are used")
-    centreline: Path | None = _f(None, "course centreline from start to finish (vector line)")
+    centreline: Path | None = _f(None, "course centreline from start to finish (vector line; a GPX "
+                                       "track or route works)")
+    centreline_feature: str | None = _f(None, "which line to use when the centreline file holds several "
+                                              "(GPX tracks and routes, KML placemarks): a `name` or a "
+                                              "0-based index")
     markers: Path | None = _f(None, "named section markers along the course (vector points)")
     agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
     crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "

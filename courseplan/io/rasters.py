@@ -48,7 +48,7 @@ def open_raster_info(path: Path, what: str) -> dict:
                          fix="give a GeoTIFF (or another raster GDAL reads)") from None
     if info["crs"] is None:
         raise CRSError(f"the {what} raster has no CRS", where=str(p),
-                       fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
+                       fix="assign one with rasterio's rio command, e.g. rio edit-info --crs EPSG:32632 FILE")
     return info
 
 
