@@ -64,9 +64,8 @@ class Inputs:
     forecast: Path | None = _f(None, "hourly forecast CSV; without it [forecast] constants are used")
     centreline: Path | None = _f(None, "course centreline from start to finish (vector line; a GPX "
                                        "track or route works)")
-    centreline_feature: str | None = _f(None, "which line to use when the centreline file holds several "
-                                              "(GPX tracks and routes, KML placemarks): a `name` or a "
-                                              "0-based index")
+    centreline_feature: str | None = _f(None, "which line of several (GPX tracks and routes, KML "
+                                              "placemarks) is the centreline: a `name` or a 0-based index")
     markers: Path | None = _f(None, "named section markers along the course (vector points)")
     agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
     crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "
@@ -109,9 +108,9 @@ class Zoning:
                                        factory=lambda: [15.0, 25.0])
     min_zone_area_m2: float = _f(400.0, "zones smaller than this merge into the most similar neighbour",
                                  unit="m²", lo=0.0, hi=1e6)
-    min_zone_width_m: float = _f(15.0, "zones narrower than this (largest inscribed circle) merge into the "
-                                       "most similar neighbour (capped at half the course's local width; "
-                                       "0 = off); [P] common practice, no published source", unit="m", lo=0.0, hi=1000.0)
+    min_zone_width_m: float = _f(15.0, "narrower zones (largest inscribed circle; at most half the "
+                                       "course width there; 0 = off) merge into a neighbour; [P] common "
+                                       "practice, no published source", unit="m", lo=0.0, hi=1000.0)
     section_length_m: float = _f(250.0, "course sections every this many metres from the start",
                                  unit="m", lo=10.0, hi=1e5)
     start_xy: list[float] | None = _f(None, "start point [x, y] in the course file's CRS (default: "
