@@ -33,6 +33,8 @@ ZONING = _cols(
     "zoning",
     ("zone_id", "", "zone number, 1 … n in course order", "int"),
     ("course_order", "", "position along the course from the start, 1 … n", "int"),
+    ("label", "", "short zone label: section number and a letter in course order (2B = second zone "
+                  "of section 2)", "str"),
     ("section", "", "course section label (distance band from the start or marker name)", "str"),
     ("exposure_class", "", "sun exposure class from the sun/shade raster", "str"),
     ("slope_class", "", "slope class (from the DEM; 'n/a' without one)", "str"),

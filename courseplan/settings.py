@@ -49,7 +49,8 @@ class PlanInfo:
 class Inputs:
     """``[inputs]``: the files a plan reads."""
 
-    course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads")
+    course: Path | None = _f(None, "course outline: a polygon in any vector format GDAL reads (KML/KMZ "
+                                   "too), or a closed GPX track or route")
     course_feature: str | None = _f(None, "which feature to use when the course file holds several "
                                           "polygons: a value of the `name` field or a 0-based index")
     course_layer: str | None = _f(None, "which layer of a GeoPackage (or other multi-layer file) holds the "
@@ -66,7 +67,10 @@ class Inputs:
     max_uncovered_pct: float = _f(5.0, "refuse a sun raster or DEM that leaves more than this share of the "
                                        "course without data", unit="%", lo=0.0, hi=100.0)
     forecast: Path | None = _f(None, "hourly forecast CSV; without it [forecast] constants are used")
-    centreline: Path | None = _f(None, "course centreline from start to finish (vector line)")
+    centreline: Path | None = _f(None, "course centreline from start to finish (vector line; a GPX "
+                                       "track or route works)")
+    centreline_feature: str | None = _f(None, "which line of several (GPX tracks and routes, KML "
+                                              "placemarks) is the centreline: a `name` or a 0-based index")
     markers: Path | None = _f(None, "named section markers along the course (vector points)")
     agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
     crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "
@@ -109,6 +113,9 @@ class Zoning:
                                        factory=lambda: [15.0, 25.0])
     min_zone_area_m2: float = _f(400.0, "zones smaller than this merge into the most similar neighbour",
                                  unit="m²", lo=0.0, hi=1e6)
+    min_zone_width_m: float = _f(15.0, "narrower zones (largest inscribed circle; at most half the "
+                                       "course width there; 0 = off) merge into a neighbour; [P] common "
+                                       "practice, no published source", unit="m", lo=0.0, hi=1000.0)
     section_length_m: float = _f(250.0, "course sections every this many metres from the start",
                                  unit="m", lo=10.0, hi=1e5)
     start_xy: list[float] | None = _f(None, "start point [x, y] in the course file's CRS (default: "

@@ -39,7 +39,7 @@ def test_zone_areas_sum_to_the_geodesic_area(tmp_path_factory, x0, y0, w, h, ske
     out = d / "out"
     res = CliRunner().invoke(main, ["plan", "--course", str(d / "c.geojson"), "--sun", str(d / "s.tif"),
                                     "--date", "2027-03-18", "--quiet", "--out", str(out)])
-    if res.exit_code != 0:
+    if res.exit_code not in (0, 3):   # 3: written, but the crews cannot do it in time (a valid plan)
         assert res.exit_code == 2 and "Traceback" not in res.output, res.output
         return
     s = json.loads((out / "summary.json").read_text())

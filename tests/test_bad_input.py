@@ -219,13 +219,13 @@ def test_course_without_crs(good, tmp_path):
     p = tmp_path / "nocrs.shp"
     gpd.GeoDataFrame({"name": ["c"]}, geometry=[Polygon(SQUARE)]).to_file(p)
     assert not p.with_suffix(".prj").exists()
-    refused(run(good.args(course=p)), good.out, "has no CRS", "nocrs.shp", "-a_srs")
+    refused(run(good.args(course=p)), good.out, "has no CRS", "nocrs.shp", "set_crs")
 
 
 def test_metres_in_a_degree_file(good, tmp_path):
     # GeoJSON without a crs member is WGS84 by definition; these are UTM metres
     p = geojson(tmp_path / "metres.geojson", [feature(polygon(SQUARE))], crs=None)
-    refused(run(good.args(course=p)), good.out, "are not degrees", "EPSG:4326", "metres.geojson", "-a_srs")
+    refused(run(good.args(course=p)), good.out, "are not degrees", "EPSG:4326", "metres.geojson", "set_crs")
 
 
 def test_degrees_in_a_metre_file(good, tmp_path):
@@ -238,7 +238,7 @@ def test_degrees_in_a_metre_file(good, tmp_path):
 
 def test_raster_without_crs(good, tmp_path):
     p = sun_tif(tmp_path / "nocrs.tif", crs=None)
-    refused(run(good.args(sun=p)), good.out, "sun raster has no CRS", "nocrs.tif", "gdal_edit")
+    refused(run(good.args(sun=p)), good.out, "sun raster has no CRS", "nocrs.tif", "rio edit-info --crs")
 
 
 def test_raster_not_overlapping(good, tmp_path):

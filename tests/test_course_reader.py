@@ -139,3 +139,28 @@ def test_array_built_geometry_equals_shapely_shape(gj):
     assert got.geom_type == ref.geom_type
     assert got.has_z == ref.has_z
     assert shapely.equals_exact(got, ref, tolerance=0.0) or (got.is_empty and ref.is_empty)
+
+
+def test_needle_thin_spike_is_dropped_at_the_reader(tmp_path):
+    # A valid outline with a needle 0.08 mm wide: the reader snaps to 1 mm, the needle collapses
+    # and is dropped; what is left is valid and its area is the square's (hand value 100 × 50 m²).
+    ring = SQ[:2] + [[400100.0, 5200025.0], [400160.0, 5200025.00008], [400100.0, 5200025.00016]] + SQ[2:]
+    doc = {"type": "FeatureCollection", "crs": CRS_32632,
+           "features": [feat({"type": "Polygon", "coordinates": [ring]}, name="c")]}
+    a, b = both(write(tmp_path / "needle.geojson", doc))
+    same(a, b)
+    assert shapely.Polygon(ring).is_valid
+    assert a.geometry.is_valid
+    assert a.geometry.area == pytest.approx(5000.0, abs=1e-6)
+    assert a.geometry.bounds[2] == pytest.approx(400100.0)
+
+
+def test_zero_width_spike_and_line_parts_are_dropped():
+    from courseplan.geo.geometry import clean_polygon
+
+    spike = shapely.Polygon([(0, 0), (10, 0), (10, 5), (20, 5), (10, 5), (10, 10), (0, 10)])
+    assert not spike.is_valid
+    g = clean_polygon(spike, 1e-3)
+    assert g.is_valid and g.geom_type == "Polygon"
+    assert g.area == pytest.approx(100.0)
+    assert clean_polygon(shapely.box(0, 0, 1e-4, 1e-4), 1e-3).is_empty

@@ -70,7 +70,7 @@ def test_distorting_working_crs_setting_refused(good):
 
 def test_rotated_raster_refused(good, tmp_path):
     p = tif(tmp_path / "rot.tif", [RAMP], Affine(5, 0.5, X0 - 50, 0.5, -5, Y0 + 350))
-    refused(run(good.args(sun=p)), good.out, "rotated", "gdalwarp")
+    refused(run(good.args(sun=p)), good.out, "rotated", "rio warp")
 
 
 def test_south_up_raster_refused_as_south_up(good, tmp_path):

@@ -164,7 +164,7 @@ def test_named_markers_split_the_sections(tmp_path):
     out = tmp_path / "o"
     res = run(["plan", str(SAMPLE / "plan.toml"), "--set", f'inputs.markers="{tmp_path / "m.geojson"}"',
                "--out", str(out)])
-    assert res.exit_code == 0, res.output
+    assert res.exit_code in (0, 3), res.output   # 3: the crews fall short; the zones are what is tested
     z = gpd.read_file(out / "zones.gpkg", layer="zones").sort_values("course_order")
     order = {"start": 0, **{n: i + 1 for i, n in enumerate(names)}}
     ranks = [order[s] for s in z["section"]]

@@ -31,3 +31,36 @@ def geometry_from_geojson(gj: dict) -> BaseGeometry:
     except (ValueError, TypeError, GEOSException):
         pass
     return shape(gj)
+
+
+def polygonal(g: BaseGeometry) -> BaseGeometry:
+    """The polygon parts of *g* (lines and points of a collection dropped), as one geometry."""
+    if g.geom_type in ("Polygon", "MultiPolygon"):
+        return g
+    parts = [p for p in shapely.get_parts(g) if p.geom_type in ("Polygon", "MultiPolygon") and not p.is_empty]
+    return shapely.union_all(parts) if parts else shapely.Polygon()
+
+
+def clean_polygon(geom: BaseGeometry, grid_size: float) -> BaseGeometry:
+    """A valid polygon with no part narrower than about *grid_size*: the course as zoning can tile it.
+
+    Steps: ``shapely.make_valid`` when invalid, keep the polygon parts (a zero-width spike comes back
+    as a line and is dropped), snap the vertices to a grid of *grid_size* (``shapely.set_precision``,
+    which keeps the result valid and removes the parts that collapse), and drop parts whose area is
+    below ``grid_size²``.  A multipolygon stays a multipolygon.
+
+    Why the snap: a valid but needle-thin spike (say 0.08 mm wide along a cell edge) has an area
+    but touches no raster cell by GDAL's all-touched rule, so no zone can cover it.  A grid of 1 mm
+    (1e-8° for a geographic CRS) moves a vertex by at most 0.7 mm, far below what a crew can mark.
+    """
+    g = geom if geom.is_valid else shapely.make_valid(geom)
+    g = polygonal(g)
+    if g.is_empty:
+        return g
+    g = polygonal(shapely.set_precision(g, grid_size))
+    parts = [p for p in shapely.get_parts(g) if p.area > grid_size * grid_size]
+    if not parts:
+        return shapely.Polygon()
+    if len(parts) == 1 and geom.geom_type != "MultiPolygon":
+        return parts[0]
+    return shapely.multipolygons(parts)  # a multipolygon stays one, even with one part left

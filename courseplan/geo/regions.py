@@ -162,12 +162,15 @@ def polygon_parts(g: BaseGeometry) -> list[BaseGeometry]:
 
 
 
-def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope: int) -> list[dict]:
-    """Merge pieces below *min_area* into the most similar touching neighbour.
+def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope: int,
+                       thin=None) -> list[dict]:
+    """Merge pieces below *min_area*, or slivers (*thin*, a predicate on the geometry), into the most
+    similar touching neighbour.
 
     Similarity: the difference in exposure class counts most, then slope class, then section;
     among equally similar neighbours the one sharing the longest edge wins.  A small piece with no
-    neighbour (an island of a multi-part course) stays a zone of its own.
+    neighbour (an island of a multi-part course) stays a zone of its own.  The smallest flagged
+    piece goes first; a zone is tested again after it has absorbed a piece.
     """
     zones = [{"geom": p["geom"], "code": p["code"], "regions": [p["region"]], "weights": [p["area"]],
               "alive": True} for p in pieces]
@@ -179,16 +182,17 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
     for a, b in zip(left.tolist(), right.tolist(), strict=True):
         if a != b:
             neighbours[a].add(b)
-    # Parent pointers: merged zones live on in the absorbing zone.
+
     def key(z: dict) -> tuple[int, int, int]:
         return code_key(z["code"], n_exp, n_slope)
 
-    stuck: set[int] = set()
-    while True:
-        small = [i for i, z in enumerate(zones) if z["alive"] and z["geom"].area < min_area and i not in stuck]
-        if not small:
-            break
-        i = min(small, key=lambda j: zones[j]["geom"].area)
+    def flagged(z: dict) -> bool:
+        return z["geom"].area < min_area or (thin is not None and bool(thin(z["geom"])))
+
+    flag = {i for i, z in enumerate(zones) if flagged(z)}
+    while flag:
+        i = min(flag, key=lambda j: (zones[j]["geom"].area, j))
+        flag.discard(i)
         zi = zones[i]
         ki = key(zi)
         best, best_score = None, None
@@ -203,8 +207,7 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
             if best_score is None or score < best_score:
                 best, best_score = j, score
         if best is None:
-            stuck.add(i)
-            continue
+            continue  # stuck: stays a zone of its own
         zb = zones[best]
         zb["geom"] = shapely.union(zb["geom"], zi["geom"])
         if zb["geom"].geom_type != "Polygon":
@@ -215,8 +218,13 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
         zi["alive"] = False
         neighbours[best] |= neighbours[i]
         neighbours[best].discard(best)
+        neighbours[best].discard(i)
         for j in neighbours[i]:
             neighbours[j].discard(i)
             if j != best:
                 neighbours[j].add(best)
+        if flagged(zb):
+            flag.add(best)
+        else:
+            flag.discard(best)
     return [z for z in zones if z["alive"]]

@@ -379,18 +379,10 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
     centre = None
     if ins.centreline:
         def read_line():
-            p, g = _read_vector_with_crs(ins.centreline, "centreline")
-            lines = g[g.geometry.geom_type.isin(["LineString", "MultiLineString"])]
-            if len(lines) == 0:
-                raise InputError("the centreline file holds no line", where=str(p),
-                                 fix="draw the centreline as one line from start to finish")
-            import shapely
-            line = shapely.line_merge(lines.geometry.iloc[0]) if lines.geometry.iloc[0].geom_type != \
-                "LineString" else lines.geometry.iloc[0]
-            if line.geom_type != "LineString":
-                raise InputError("the centreline is not one connected line", where=str(p),
-                                 fix="join its parts into one line from start to finish")
-            return _reproject_geom(line, CRS.from_user_input(g.crs), crs)
+            from courseplan.io.course import read_centreline
+
+            line, lcrs, _ = read_centreline(ins.centreline, ins.centreline_feature)
+            return _reproject_geom(line, lcrs, crs)
         centre = attempt(read_line)
         sources["centreline"] = str(ins.centreline)
     markers: tuple = ()

@@ -102,22 +102,30 @@ def _gpkg_ready(gdf):
         if g[c].dtype == object:
             g[c] = g[c].map(lambda v: None if v is None else (json.dumps(_plain(v)) if isinstance(v, list | tuple | dict)
                                                              else str(v)))
-        elif str(g[c].dtype) == "bool":
-            g[c] = g[c].astype(np.int8)
-    return g
+        elif str(g[c].dtype).startswith("datetime64"):
+            g[c] = [("" if pd.isna(v) else pd.Timestamp(v).isoformat()) for v in g[c]]
+    return g  # booleans stay bool: pyogrio writes them as GeoPackage BOOLEAN fields
 
 
 def write_gpkg(path: Path, result) -> None:
-    """Write ``zones``, ``course``, ``observations``, ``crews`` and the ``plan_settings``, ``plan_totals``
-    and ``units`` tables into one GeoPackage.
+    """Write ``zones``, ``course``, ``observations``, ``crews`` and the ``plan_settings``, ``plan_totals``,
+    ``units`` and ``layer_styles`` tables into one GeoPackage.
+
+    Booleans are GeoPackage BOOLEAN fields, times ISO 8601 text; ``layer_styles`` holds the default
+    style of ``zones`` (fill by ``dose_g_m2`` in fixed classes, labelled by ``label``) as SLD and QML,
+    so the file opens styled in a desktop GIS.
     """
+    from datetime import UTC, datetime
+
     import pyogrio
+
+    from courseplan.render.gpkg_style import zones_qml, zones_sld
 
     _gpkg_ready(result.zones).to_file(path, layer="zones", driver="GPKG", engine="pyogrio")
     result.course.to_file(path, layer="course", driver="GPKG", engine="pyogrio")
     if result.observations is not None and len(result.observations):
         obs = result.observations.copy()
-        obs["time"] = obs["time"].astype(str)
+        obs["time"] = [("" if pd.isna(v) else pd.Timestamp(v).isoformat()) for v in obs["time"]]
         _gpkg_ready(obs).to_file(path, layer="observations", driver="GPKG", engine="pyogrio")
     crews = result.logistics.crews
     if crews is not None and len(crews):
@@ -135,6 +143,13 @@ def write_gpkg(path: Path, result) -> None:
     units = pd.DataFrame([{"column": c.name, "unit": c.unit, "meaning": c.meaning, "stage": c.stage}
                           for c in ALL_COLUMNS])
     pyogrio.write_dataframe(units, path, layer="units", driver="GPKG")
+    styles = pd.DataFrame([{
+        "f_table_catalog": "", "f_table_schema": "", "f_table_name": "zones",
+        "f_geometry_column": pyogrio.read_info(path, layer="zones")["geometry_name"] or "geom",
+        "styleName": "zones by dose", "styleQML": zones_qml(), "styleSLD": zones_sld(),
+        "useAsDefault": True, "description": "zones filled by dose_g_m2 in fixed classes, labelled by label",
+        "owner": "", "ui": "", "update_time": datetime.now(UTC).isoformat(timespec="seconds")}])
+    pyogrio.write_dataframe(styles, path, layer="layer_styles", driver="GPKG", layer_options={"FID": "id"})
 
 
 def write_map(path: Path, result) -> None:

@@ -48,24 +48,24 @@ def open_raster_info(path: Path, what: str) -> dict:
                          fix="give a GeoTIFF (or another raster GDAL reads)") from None
     if info["crs"] is None:
         raise CRSError(f"the {what} raster has no CRS", where=str(p),
-                       fix="assign one, e.g. gdal_edit.py -a_srs EPSG:32632 FILE")
+                       fix="assign one with rasterio's rio command, e.g. rio edit-info --crs EPSG:32632 FILE")
     t = info["transform"]
     if t.b != 0 or t.d != 0:
         angle = math.degrees(math.atan2(t.d, t.a))
         raise InputError(f"the {what} raster's grid is rotated (geotransform rotation terms {t.b:g}, {t.d:g}; "
                          f"about {angle:.1f}°), which courseplan does not read", where=str(p),
-                         fix="warp it to a north-up grid first, e.g. gdalwarp IN.tif OUT.tif")
+                         fix="warp it to a north-up grid first, e.g. with rasterio's rio command: rio warp IN.tif OUT.tif --dst-crs EPSG:32632")
     if t.e > 0:
         raise InputError(f"the {what} raster is stored south-up (its rows run from south to north, "
                          f"pixel height {t.e:g} > 0)", where=str(p),
-                         fix="write it north-up first, e.g. gdalwarp IN.tif OUT.tif")
+                         fix="write it north-up first, e.g. with rasterio's rio command: rio warp IN.tif OUT.tif --dst-crs EPSG:32632")
     if t.a < 0:
         raise InputError(f"the {what} raster is stored east-to-west (pixel width {t.a:g} < 0)", where=str(p),
-                         fix="write it with columns running west to east, e.g. gdalwarp IN.tif OUT.tif")
+                         fix="write it with columns running west to east, e.g. with rasterio's rio command: rio warp IN.tif OUT.tif --dst-crs EPSG:32632")
     return info
 
 
-#: Vertical units of a DEM band (``gdalinfo`` "Unit Type") and their size in metres.
+#: Vertical units of a DEM band (its unit type, as `rio info` shows it) and their size in metres.
 DEM_UNITS = {"": 1.0, "m": 1.0, "metre": 1.0, "meter": 1.0, "metres": 1.0, "meters": 1.0,
              "ft": 0.3048, "foot": 0.3048, "feet": 0.3048, "international foot": 0.3048,
              "us-ft": 1200.0 / 3937.0, "us survey foot": 1200.0 / 3937.0, "ftus": 1200.0 / 3937.0,
@@ -80,7 +80,7 @@ def dem_unit_factor(info: dict, band: int, where: str) -> tuple[float, str]:
     if key not in DEM_UNITS:
         raise InputError(f"the DEM's heights are in {unit!r}, a unit courseplan does not know", where=where,
                          fix="give heights in metres or feet (set the band unit, e.g. "
-                             "gdal_edit.py -units m FILE, if the values already are metres)")
+                             "rio edit-info --units m FILE, if the values already are metres)")
     return DEM_UNITS[key], unit
 
 

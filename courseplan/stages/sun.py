@@ -150,7 +150,8 @@ def sun_from_dem(dem: np.ndarray, transform, crs, *, date: str, start: str, end:
         z[mask] = np.nan
     if transform.b != 0 or transform.d != 0:
         raise InputError("the DEM grid is rotated", where="DEM",
-                         fix="warp it to a north-up grid (gdalwarp) first")
+                         fix="warp it to a north-up grid first, e.g. with rasterio's rio command: "
+                             "rio warp IN.tif OUT.tif --dst-crs EPSG:32632")
     dx_m, dy_m = abs(float(transform.a)), abs(float(transform.e))
     flip = transform.e > 0                                # south-up grid: row 0 at the south
     if flip:

@@ -10,9 +10,13 @@ only.  Steps:
 3. polygonise the class raster (``rasterio.features.shapes``) and take per-region statistics in one
    pass over the window (``numpy.bincount`` on the region raster);
 4. clip the regions to the exact course polygon, so that zone areas sum to the course area;
-5. merge pieces below the minimum area into the most similar touching neighbour (same exposure
-   first, then slope class, then section; ties broken by the longest shared edge);
-6. number the zones 1 … n in course order (mean distance from the start).
+5. merge pieces below the minimum area, and slivers narrower than the minimum width, into the most
+   similar touching neighbour (same exposure first, then slope class, then section; ties broken by
+   the longest shared edge);
+6. smooth the shared zone edges by about one cell (``shapely.coverage_simplify``, the course
+   outline kept) and re-tile the course: no gaps, no overlaps;
+7. number the zones 1 … n in course order (mean distance from the start) and label them
+   section number + letter (``2B``).
 
 Distance from the start follows the course: along the centreline when one is given, otherwise the
 shortest path inside the course polygon on the cell grid (Dijkstra, ``scipy.sparse.csgraph``).
@@ -30,6 +34,7 @@ from shapely.geometry.base import BaseGeometry
 from courseplan.columns import check_stage
 from courseplan.errors import InputError, OverlapError
 from courseplan.geo.chainage import cell_xy, distance_of_cells
+from courseplan.geo.coverage import smooth_edges, thin_test
 from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.raster import burn, fill_nearest
 from courseplan.geo.regions import (
@@ -53,6 +58,26 @@ def default_breaks(encoding: str, window_hours: float) -> list[float]:
     if encoding == "percent":
         return [35.0, 70.0]
     return [150.0 * window_hours, 350.0 * window_hours]
+
+
+def zone_labels(section_index: list[int]) -> list[str]:
+    """Short zone labels in course order: section number (1-based) and a letter per zone in it,
+    ``1A``, ``1B``, ``2A`` …; past ``Z`` the letters go on ``AA``, ``AB`` …"""
+    def letters(k: int) -> str:
+        out = ""
+        k += 1
+        while k:
+            k, r = divmod(k - 1, 26)
+            out = chr(65 + r) + out
+        return out
+
+    seen: dict[int, int] = {}
+    out = []
+    for s in section_index:
+        k = seen.get(int(s), 0)
+        seen[int(s)] = k + 1
+        out.append(f"{int(s) + 1}{letters(k)}")
+    return out
 
 
 @dataclass(frozen=True)
@@ -295,7 +320,15 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         for part in polygon_parts(g):
             if part.area > 0:
                 pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
-    merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope)
+    thin = thin_test(inp.course, settings.min_zone_width_m)
+    merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope, thin=thin)
+    # Smooth the staircase of cell sides on the shared edges (about one cell), keep the outline,
+    # and re-tile the course (no gaps, no overlaps).
+    smooth, smoothed = smooth_edges([z["geom"] for z in merged], inp.course, max(cgrid.cell_size))
+    for z, g in zip(merged, smooth, strict=True):
+        z["geom"] = g
+    if len(merged) > 1 and not smoothed:
+        notes.append("zone edges left as raster steps: the zones were not a clean coverage to simplify")
 
     cols_out: dict[str, list] = {c: [] for c in (
         "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
@@ -340,6 +373,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     n = len(order)
     table: dict[str, list] = {"zone_id": list(range(1, n + 1)), "course_order": list(range(1, n + 1))}
     table.update({k: [vals[i] for i in order] for k, vals in cols_out.items()})
+    table["label"] = zone_labels(table["section_index"])
     exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
     exp_grid[touch] = exp_t
     exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
