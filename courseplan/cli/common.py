@@ -22,31 +22,34 @@ def _fail(lines: list[str], code: int = EXIT_INPUT) -> None:
     sys.exit(code)
 
 
+def problem_lines(exc) -> list[str]:
+    """The one-line messages of a library error: one per problem (a ProblemList ends with its count)."""
+    from courseplan.errors import ObservationError, ProblemList
+
+    if isinstance(exc, ProblemList):
+        lines = []
+        for p in exc.problems:
+            lines += (p.problems if isinstance(p, ObservationError) and p.problems else [p.line()])
+        return lines + [exc.line()]
+    if isinstance(exc, ObservationError):
+        return exc.problems or [exc.line()]
+    return [exc.line()]
+
+
 def guarded(fn):
     """Turn library errors into one line each and a non-zero exit (tracebacks only with --debug)."""
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
         debug = kwargs.get("debug", False)
-        from courseplan.errors import CourseplanError, ObservationError, ProblemList
+        from courseplan.errors import CourseplanError
 
         try:
             return fn(*args, **kwargs)
-        except ProblemList as exc:
-            if debug:
-                raise
-            lines = []
-            for p in exc.problems:
-                lines += (p.problems if isinstance(p, ObservationError) and p.problems else [p.line()])
-            _fail(lines + [exc.line()])
-        except ObservationError as exc:
-            if debug:
-                raise
-            _fail(exc.problems or [exc.line()])
         except CourseplanError as exc:
             if debug:
                 raise
-            _fail([exc.line()])
+            _fail(problem_lines(exc))
         except KeyboardInterrupt:
             click.echo("interrupted: nothing was written", err=True)
             sys.exit(EXIT_INTERRUPTED)
