@@ -25,6 +25,8 @@ from courseplan.errors import OutputError
 from courseplan.io.files import refuse_existing, write_bytes_atomic, write_text_atomic
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
+SCHEMA_VERSION = "1.0"
+"""Version of ``summary.json`` (its JSON Schema: ``courseplan/schema/summary.schema.json``)."""
 
 
 def _plain(v: Any) -> Any:
@@ -44,7 +46,11 @@ def _plain(v: Any) -> Any:
 
 
 def summary_dict(result) -> dict[str, Any]:
-    """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions."""
+    """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions.
+
+    Its fields are fixed by ``courseplan/schema/summary.schema.json`` (``schema_version``); a new
+    field needs the schema, ``SCHEMA_VERSION`` and ``docs/outputs.md`` changed with it.
+    """
     z = result.zones
     cols = [c for c in z.columns if c != "geometry"]
     zones = []
@@ -52,6 +58,7 @@ def summary_dict(result) -> dict[str, Any]:
         zones.append({k: _plain(v) for k, v in rec.items()})
     log = result.logistics.summary()
     out = {
+        "schema_version": SCHEMA_VERSION,
         "courseplan_version": __version__,
         "plan": result.settings.plan.name,
         "date": result.settings.plan.date,
