@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import shutil
 import tempfile
 from pathlib import Path
@@ -22,7 +23,7 @@ from courseplan import __version__
 from courseplan.columns import ALL as ALL_COLUMNS
 from courseplan.columns import NO_UNIT, unit
 from courseplan.errors import OutputError
-from courseplan.io.files import refuse_existing, write_bytes_atomic, write_text_atomic
+from courseplan.io.files import file_mode, folder_mode, refuse_existing, write_bytes_atomic, write_text_atomic
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
 SCHEMA_VERSION = "1.0"
@@ -197,6 +198,9 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
                   cautions=list(result.cautions))
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
+        for f in tmp.iterdir():  # as a plain mkdir/open would make them under the umask (0755/0644)
+            os.chmod(f, folder_mode() if f.is_dir() else file_mode())
+        os.chmod(tmp, folder_mode())  # mkdtemp made it 0700
         old = None
         if out_dir.exists():
             old = Path(tempfile.mkdtemp(prefix=f".{out_dir.name}.old-", dir=parent))
