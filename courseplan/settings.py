@@ -413,7 +413,8 @@ def settings_from_mapping(data: dict[str, Any], source: str = "plan file", base:
     for name, table in data.items():
         try:
             if name not in SECTIONS:
-                raise SettingsError(f"unknown table [{name}]", where=source, fix=_suggest(name, list(SECTIONS)))
+                raise SettingsError(f"unknown table [{name}]", where=source,
+                                    fix=_suggest(name, list(SECTIONS)))
             sections[name] = section_from_mapping(SECTIONS[name], table, f"{source} [{name}]", base,
                                                   getattr(current, name))
         except SettingsError as exc:

@@ -22,7 +22,8 @@ EVIL = "<script>document.title='pwned'</script><img src=x onerror=\"document.tit
 
 
 def _zones() -> gpd.GeoDataFrame:
-    # six 150 m squares in two rows, one per fixed dose class (1–20, 20–40, 40–60, 60–100, 100–150, > 150)
+    # six 150 m squares in two rows, one per fixed dose class (1–20, 20–40, 40–60, 60–100, 100–150,
+    # > 150 g/m²)
     doses = [10.0, 30.0, 50.0, 80.0, 120.0, 200.0]
     geoms = [box(X0 + 150 * (i % 3), Y0 + 150 * (i // 3), X0 + 150 * (i % 3 + 1), Y0 + 150 * (i // 3 + 1))
              for i in range(6)]
@@ -111,7 +112,8 @@ def test_print_is_one_a4_page_with_the_map_and_legend(tmp_path, chromium):
     w, h = (float(v) for v in reader.pages[0].mediabox[2:])
     assert abs(w - 595) < 2 and abs(h - 842) < 2  # A4 in points
     text = reader.pages[0].extract_text()
-    assert "Dose over the day" in text and "Cautions" in text and "Zones by dose" not in text  # no layer control
+    assert "Dose over the day" in text and "Cautions" in text
+    assert "Zones by dose" not in text  # no layer control
 
 
 def test_untreated_zone_is_drawn_hatched(tmp_path, chromium):

@@ -160,8 +160,8 @@ def test_zone_colours_follow_the_dose_scale():
 def test_legend_has_units():
     page = _page()
     assert "Dose over the day (P50, g/m²)" in page
-    for label in ("1–20 g/m²", "20–40 g/m²", "40–60 g/m²", "60–100 g/m²", "100–150 g/m²", "&gt; 150 g/m²",
-                  "0: no salt (not treated)"):
+    for label in ("1–20 g/m²", "20–40 g/m²", "40–60 g/m²", "60–100 g/m²", "100–150 g/m²",
+                  "&gt; 150 g/m²", "0: no salt (not treated)"):
         assert label in page, label
 
 
@@ -355,7 +355,8 @@ def test_write_map_html_atomic(tmp_path):
 def test_popup_leads_with_the_crew_facts():
     from courseplan.render.layers import zone_lead
 
-    row = {"zone_id": 7, "section": "250–500 m", "verdict": "treat-in-passes", "advice": "Salt again at the times shown.",
+    row = {"zone_id": 7, "section": "250–500 m", "verdict": "treat-in-passes",
+           "advice": "Salt again at the times shown.",
            "passes": 2, "pass_times": "06:42; 12:13", "max_pass_g_m2": 77.9, "dose_g_m2": 114.1,
            "dose_p90_g_m2": 123.4, "hard_until": "12:50", "bags": 72, "crew": 1}
     lead = zone_lead(row)
@@ -367,7 +368,8 @@ def test_popup_leads_with_the_crew_facts():
     held = zone_lead({**row, "passes": 3, "pass_times": "06:00; 10:00; 12:00", "hard_until": "end of day"})
     assert dict(held["lines"])["Passes"] == "3 — spread at 06:00, 10:00 and 12:00"
     assert dict(held["lines"])["Hard until"].startswith("the end of the day")
-    none = zone_lead({"zone_id": 3, "dose_g_m2": 0.0, "passes": 0, "verdict": "water-first", "advice": "Drain."})
+    none = zone_lead({"zone_id": 3, "dose_g_m2": 0.0, "passes": 0, "verdict": "water-first",
+                      "advice": "Drain."})
     assert none["treated"] is False and ("Salt", "none in this zone") in none["lines"]
 
 

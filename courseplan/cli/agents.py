@@ -81,7 +81,8 @@ def agents_command(as_json: bool, agents_file: Path | None, wide: bool, sources:
         need = Measurement.get(con, con.options.update(width=10_000), t).maximum
         con.width = max(con.width, need)
     con.print(t)
-    print_wrapped(con, "kJ/kg: heat absorbed (+) or released (−) per kg of salt on dissolving. Every column: "
+    print_wrapped(con, "kJ/kg: heat absorbed (+) or released (−) per kg of salt on dissolving. "
+                  "Every column: "
                   "`courseplan agents --wide`; the confidence of each value: `--sources` or `--json`.")
     if sources:
         for ag in _rows(cat):

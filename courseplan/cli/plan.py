@@ -112,20 +112,22 @@ def summary_lines(result, out_dir: Path) -> list[tuple[str, str, str | None]]:
     o = result.logistics.order
     log = result.logistics.summary()
     pl = result.settings.plan
-    out: list[tuple[str, str, str | None]] = [("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold")]
-    out.append(("product: ", f"{tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90)",
-                "bold"))
+    out: list[tuple[str, str, str | None]] = [
+        ("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold"),
+        ("product: ", f"{tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90)",
+         "bold")]
     packs = ", ".join(f"{p['count']} {p['kind']}{'s' if p['count'] != 1 else ''} of {p['size_kg']:g} kg"
                       for p in (log.get("order") or {}).get("packages", []) if p.get("count"))
     pallets = f" on {o.pallets} pallets" if getattr(o, "pallets", None) else ""
-    out.append(("order: ", f"{o.order_kg:,.0f} kg = {o.tonnes:.2f} t" + (f": {packs}{pallets}" if packs else ""),
-                None))
+    out.append(("order: ", f"{o.order_kg:,.0f} kg = {o.tonnes:.2f} t"
+                + (f": {packs}{pallets}" if packs else ""), None))
     crews = (log.get("crews") or {}).get("count", 0)
     verdicts = ", ".join(f"{k} {v}" for k, v in tot["verdicts"].items())
     out.append(("zones: ", f"{tot['treated_zone_count']} of {tot['zone_count']} treated ({verdicts}); "
                 f"{crews} crew{'s' if crews != 1 else ''}", None))
-    out.append(("course: ", f"{tot['course_area_m2']:,.0f} m² map, {tot['course_surface_area_m2']:,.0f} m² snow "
-                f"surface; nitrogen {tot['nitrogen_kg']:,.1f} kg, chloride {tot['chloride_kg']:,.1f} kg", None))
+    out.append(("course: ", f"{tot['course_area_m2']:,.0f} m² map, {tot['course_surface_area_m2']:,.0f} m² "
+                f"snow surface; nitrogen {tot['nitrogen_kg']:,.1f} kg, chloride {tot['chloride_kg']:,.1f} kg",
+                None))
     for n in result.notes:
         out.append(("note: ", n, None))
     out.append(("written to ", f"{out_dir}/: " + ", ".join(OUTPUT_FILES), None))
@@ -217,7 +219,8 @@ def render_result(result, out_dir: Path, *, show_zones: bool = False) -> None:
 @click.argument("plan_file", required=False, type=click.Path(path_type=Path))
 @_input_options
 @debug_option
-@json_option("Print {ok, problems, warnings, zones, total_product_kg} as JSON on stdout; messages go to stderr.")
+@json_option("Print {ok, problems, warnings, zones, total_product_kg} as JSON on stdout; "
+             "messages go to stderr.")
 @guarded
 def check_command(plan_file, as_json, debug, **kw):
     """Check every input and setting of a plan; list all problems at once."""
@@ -243,5 +246,5 @@ def check_command(plan_file, as_json, debug, **kw):
     con = stdout_console()
     for n in warnings:
         print_wrapped(con, n, prefix="warning: ", prefix_style="yellow")
-    print_wrapped(con, f"{len(result.zones)} zones, {total:,.0f} kg of {result.agent.label} (P50); nothing written",
-                  prefix="ok: ", prefix_style="green")
+    print_wrapped(con, f"{len(result.zones)} zones, {total:,.0f} kg of {result.agent.label} (P50); "
+                  "nothing written", prefix="ok: ", prefix_style="green")

@@ -44,8 +44,8 @@ def sun_command(dem_path: Path, date: str, start: str, end: str, step_minutes: f
     if as_json:
         echo_json(r)
         return
-    print_wrapped(stdout_console(), f"{r['path']}: {r['rows']} × {r['cols']} cells of {r['cell_m']:.3g} m in "
-                  f"{r['crs']}, {r['steps']} steps of {r['step_min']:.3g} min; mean sun fraction "
+    print_wrapped(stdout_console(), f"{r['path']}: {r['rows']} × {r['cols']} cells of {r['cell_m']:.3g} m "
+                  f"in {r['crs']}, {r['steps']} steps of {r['step_min']:.3g} min; mean sun fraction "
                   f"{r['mean_sun_fraction']:.2f}, mean irradiation {r['mean_irradiation_wh_m2']:,.0f} Wh/m²",
                   prefix="wrote ")
 

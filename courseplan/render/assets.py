@@ -183,10 +183,12 @@ function openFromHash(){
   if(layer){ layer.openPopup(layer.getBounds ? layer.getBounds().getCenter() : undefined); }
 }
 window.addEventListener("hashchange", openFromHash); openFromHash();
-function refit(){map.invalidateSize({animate:false, pan:false}); map.fitBounds(D.bounds, {padding:[12,12], animate:false});}
+function refit(){map.invalidateSize({animate:false, pan:false});
+  map.fitBounds(D.bounds, {padding:[12,12], animate:false});}
 window.addEventListener("beforeprint", refit); window.addEventListener("afterprint", refit);
 if(window.matchMedia){var mq=window.matchMedia("print");
-  if(mq.addEventListener){mq.addEventListener("change", refit);} else if(mq.addListener){mq.addListener(refit);}}
+  if(mq.addEventListener){mq.addEventListener("change", refit);}
+  else if(mq.addListener){mq.addListener(refit);}}
 window.courseplanMap = map;
 })();
 """

@@ -172,10 +172,12 @@ def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
             lines.append(("Day total", total + (f" (P90 {p90})" if p90 else "")))
         bags = r.get("bags")
         if isinstance(bags, int):
-            lines.append(("Bags", f"{bags} at the depot" + (f" of crew {r['crew']}" if r.get("crew") else "")))
+            crew = f" of crew {r['crew']}" if r.get("crew") else ""
+            lines.append(("Bags", f"{bags} at the depot{crew}"))
     else:
         lines.append(("Salt", "none in this zone"))
-    return {"title": title, "verdict": str(r.get("verdict") or "—"), "treated": bool(treated), "lines": lines}
+    return {"title": title, "verdict": str(r.get("verdict") or "—"), "treated": bool(treated),
+            "lines": lines}
 
 
 def json_for_script(obj: Any) -> str:

@@ -12,7 +12,8 @@ Layers (built by :mod:`courseplan.render.layers`): zones coloured by P50 dose in
 a dark outline) or by verdict, crews with labels, field observations, the course outline with start
 and finish.  A zone's popup leads with its number, section, passes, dose per pass and "hard until" in
 a crew's words; every value with its unit (from :mod:`courseplan.columns`) is folded below.  A print
-stylesheet puts map, legend and scale bar on one A4 page without the controls.  All user-supplied text (plan and
+stylesheet puts map, legend and scale bar on one A4 page without the controls.
+All user-supplied text (plan and
 zone names, labels, notes) reaches the page either HTML-escaped or as JSON read by the page's script and
 put into the page as text nodes, never as markup.
 
