@@ -180,7 +180,10 @@ map.fitBounds(D.bounds, {padding:[12,12]});
 function openFromHash(){
   var m = /^#(zone|obs)=(.+)$/.exec(window.location.hash); if(!m){return;}
   var key = decodeURIComponent(m[2]); var layer = (m[1]==="zone" ? byZone : byObs)[key];
-  if(layer){ layer.openPopup(layer.getBounds ? layer.getBounds().getCenter() : undefined); }
+  if(!layer){return;}
+  var at = layer.getBounds ? layer.getBounds().getCenter() : layer.getLatLng();
+  map.panTo(at, {animate:false});  // centre it first, so the whole popup is on a small screen at once
+  layer.openPopup(at);
 }
 window.addEventListener("hashchange", openFromHash); openFromHash();
 function refit(){map.invalidateSize({animate:false, pan:false});
