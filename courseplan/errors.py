@@ -41,6 +41,14 @@ class CourseplanError(Exception):
         return " ".join(text.split())
 
 
+def did_you_mean(name: str, valid: list[str]) -> str:
+    """A fix hint for an unknown name: the nearest valid one, else the list of valid ones."""
+    import difflib
+
+    near = difflib.get_close_matches(name, valid, n=1, cutoff=0.5)
+    return f"did you mean {near[0]!r}?" if near else "valid keys: " + ", ".join(valid)
+
+
 class InputError(CourseplanError, ValueError):
     """An input file or value cannot be used as it is."""
 
@@ -103,3 +111,18 @@ class ProblemList(CourseplanError):
         n = len(self.problems)
         super().__init__(f"{n} problem{'s' if n != 1 else ''} found",
                          fix="see the lines above")
+
+
+class SettingsProblems(ProblemList, SettingsError):
+    """Several bad plan-file keys or values found in one pass (every one is reported, not the first)."""
+
+    @classmethod
+    def raise_all(cls, problems: list[SettingsError]) -> None:
+        """Raise nothing, the one problem itself, or all of them (nested lists flattened) at once."""
+        flat: list[CourseplanError] = []
+        for p in problems:
+            flat += p.problems if isinstance(p, ProblemList) else [p]
+        if len(flat) == 1:
+            raise flat[0]
+        if flat:
+            raise cls(flat)

@@ -12,14 +12,14 @@ This module opens no files: :mod:`courseplan.io.planfile` reads the TOML text.
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import types
 import typing
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from courseplan.errors import SettingsError
+from courseplan.errors import SettingsError, SettingsProblems
+from courseplan.errors import did_you_mean as _suggest
 
 SUN_ENCODINGS = ("fraction", "percent", "wh_m2")
 """Accepted encodings of a sun/shade raster: share of the window in sun (0–1), the same in
@@ -284,13 +284,6 @@ def minutes_of(hhmm: str, where: str) -> int:
     return hi * 60 + mi
 
 
-def _suggest(name: str, valid: list[str]) -> str:
-    near = difflib.get_close_matches(name, valid, n=1, cutoff=0.5)
-    if near:
-        return f"did you mean {near[0]!r}?"
-    return "valid keys: " + ", ".join(valid)
-
-
 def _check_value(value: Any, tp: Any, where: str, meta: dict[str, Any], base: Path | None) -> Any:
     origin = typing.get_origin(tp)
     args = typing.get_args(tp)
@@ -371,10 +364,15 @@ def section_from_mapping(cls: type, data: dict[str, Any], where: str, base: Path
     hints = typing.get_type_hints(cls)
     fields_ = {f.name: f for f in dataclasses.fields(cls)}
     values: dict[str, Any] = {}
-    for key, value in data.items():
-        if key not in fields_:
-            raise SettingsError(f"unknown key {key!r}", where=where, fix=_suggest(key, list(fields_)))
-        values[key] = _check_value(value, hints[key], f"{where} {key}", dict(fields_[key].metadata), base)
+    problems: list[SettingsError] = []
+    for key, value in data.items():  # every bad key and value, not just the first
+        try:
+            if key not in fields_:
+                raise SettingsError(f"unknown key {key!r}", where=where, fix=_suggest(key, list(fields_)))
+            values[key] = _check_value(value, hints[key], f"{where} {key}", dict(fields_[key].metadata), base)
+        except SettingsError as exc:
+            problems.append(exc)
+    SettingsProblems.raise_all(problems)
     obj = dataclasses.replace(start if start is not None else cls(), **values)
     _check_section(obj, where)
     return obj
@@ -418,6 +416,9 @@ def settings_from_mapping(data: dict[str, Any], source: str = "plan file", base:
                           start: PlanSettings | None = None) -> PlanSettings:
     """Validate a whole plan mapping (as parsed from TOML) into :class:`PlanSettings`.
 
+    Every bad table, key and value is collected: one raises its own :class:`SettingsError`,
+    several raise :class:`~courseplan.errors.SettingsProblems` listing each with its key and hint.
+
     Parameters
     ----------
     data
@@ -431,11 +432,17 @@ def settings_from_mapping(data: dict[str, Any], source: str = "plan file", base:
     """
     current = start or PlanSettings()
     sections: dict[str, Any] = {}
+    problems: list[SettingsError] = []
     for name, table in data.items():
-        if name not in SECTIONS:
-            raise SettingsError(f"unknown table [{name}]", where=source, fix=_suggest(name, list(SECTIONS)))
-        sections[name] = section_from_mapping(SECTIONS[name], table, f"{source} [{name}]", base,
-                                              getattr(current, name))
+        try:
+            if name not in SECTIONS:
+                raise SettingsError(f"unknown table [{name}]", where=source,
+                                    fix=_suggest(name, list(SECTIONS)))
+            sections[name] = section_from_mapping(SECTIONS[name], table, f"{source} [{name}]", base,
+                                                  getattr(current, name))
+        except SettingsError as exc:
+            problems.append(exc)
+    SettingsProblems.raise_all(problems)
     return current.replace(**sections)
 
 

@@ -163,6 +163,8 @@ def test_cli_agents_json_and_table():
     assert set(REQUIRED_AGENTS) <= set(data)
     assert data["NaCl"]["eutectic_c"] == -21.12 and "sources" in data["NaCl"]
     r = CliRunner().invoke(agents_command, [])
+    assert r.exit_code == 0 and "NH4NO3" in r.output
+    r = CliRunner().invoke(agents_command, ["--wide"])  # the notes column is in the wide table only
     assert r.exit_code == 0 and "NH4NO3" in r.output and "oxidiser" in r.output
 
 

@@ -168,3 +168,26 @@ def test_tiny_inputs_are_never_modified(tiny, tmp_path):
     res = run([*tiny, "--out", tmp_path / "out"])
     assert res.exit_code == 0, res.output
     assert snapshot(tmp_path / "in") == before
+
+
+@pytest.mark.parametrize(("umask", "folder", "file"), [(0o022, 0o755, 0o644), (0o027, 0o750, 0o640)])
+def test_output_modes_follow_the_umask(tiny, tmp_path, umask, folder, file):
+    import os
+    import stat
+
+    from courseplan.io.files import write_text_atomic
+
+    old = os.umask(umask)
+    try:
+        out = tmp_path / "out"
+        res = run(tiny + ["--out", out])
+        assert res.exit_code == 0, res.output
+        single = write_text_atomic(tmp_path / "one.txt", "x")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(out.stat().st_mode) == folder
+    modes = {p.name: stat.S_IMODE(p.stat().st_mode) for p in out.iterdir()}
+    assert set(modes) == {"zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf", ".courseplan-output"}
+    assert set(modes.values()) == {file}, modes
+    assert stat.S_IMODE(single.stat().st_mode) == file
+    assert not leftovers(out)

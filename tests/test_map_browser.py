@@ -22,8 +22,9 @@ EVIL = "<script>document.title='pwned'</script><img src=x onerror=\"document.tit
 
 
 def _zones() -> gpd.GeoDataFrame:
-    # six 150 m squares in two rows, one per dose class of a 20 g/m² step (top dose 118 g/m²)
-    doses = [10.0, 30.0, 50.0, 70.0, 90.0, 118.0]
+    # six 150 m squares in two rows, one per fixed dose class (1–20, 20–40, 40–60, 60–100, 100–150,
+    # > 150 g/m²)
+    doses = [10.0, 30.0, 50.0, 80.0, 120.0, 200.0]
     geoms = [box(X0 + 150 * (i % 3), Y0 + 150 * (i // 3), X0 + 150 * (i % 3 + 1), Y0 + 150 * (i // 3 + 1))
              for i in range(6)]
     return gpd.GeoDataFrame({"zone_id": np.arange(1, 7), "dose_g_m2": doses, "verdict": ["treat"] * 6,
@@ -97,3 +98,33 @@ def test_context_picture_is_drawn(tmp_path, chromium):
     # the shade colour of the sun ramp, over the map background, appears outside the zones
     want = _blend(SUN_RAMP[0][1], wm.CONTEXT_OPACITY, wm.MAP_BACKGROUND)
     assert int((np.abs(img - want).max(axis=1) <= 5).sum()) > 1000
+
+
+def test_print_is_one_a4_page_with_the_map_and_legend(tmp_path, chromium):
+    from pypdf import PdfReader
+
+    page = _page(tmp_path)
+    pdf = tmp_path / "map.pdf"
+    res = chromium._run(["--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.resolve().as_uri()])
+    assert pdf.exists(), res.stderr.decode(errors="replace")[-2000:]
+    reader = PdfReader(pdf)
+    assert len(reader.pages) == 1
+    w, h = (float(v) for v in reader.pages[0].mediabox[2:])
+    assert abs(w - 595) < 2 and abs(h - 842) < 2  # A4 in points
+    text = reader.pages[0].extract_text()
+    assert "Dose over the day" in text and "Cautions" in text
+    assert "Zones by dose" not in text  # no layer control
+
+
+def test_untreated_zone_is_drawn_hatched(tmp_path, chromium):
+    from PIL import Image
+
+    zones = _zones()
+    zones.loc[0, "dose_g_m2"] = 0.0
+    course = gpd.GeoDataFrame(geometry=[box(X0, Y0, X0 + 450, Y0 + 300)], crs=UTM)
+    path = tmp_path / "u.html"
+    path.write_text(wm.render_map_html(zones, course, title="t", agent_label="NaCl", cautions=["c"]),
+                    encoding="utf-8")
+    img = np.asarray(Image.open(chromium.screenshot(path, tmp_path / "u.png")).convert("RGB")).astype(int)
+    dark = (np.abs(img - np.array([0x4d, 0x52, 0x4c])).max(axis=2) <= 12).sum()
+    assert dark > 3000  # the hatch's dark stripes, not a faint grey fill

@@ -170,3 +170,25 @@ def test_named_markers_split_the_sections(tmp_path):
     ranks = [order[s] for s in z["section"]]
     assert set(ranks) == {0, 1, 2, 3}
     assert ranks == sorted(ranks)
+
+
+def test_check_reports_every_bad_key_with_a_hint(tmp_path):
+    p = tmp_path / "plan.toml"
+    head = (f'[plan]\nagnet = "NaCl"\ndate = "2027-03-18"\n[inputs]\ncourse = "{SAMPLE / "course.geojson"}"\n'
+            f'sun = "{SAMPLE / "sun.tif"}"\n[dosing]\ndepht_m = 0.05\n[logistics]\ncrewz = 3\n')
+    p.write_text(head + '[windw]\nstart = "10:00"\n')  # four bad keys in four tables
+    res = CliRunner().invoke(main, ["check", str(p)])
+    assert res.exit_code == 2
+    lines = [ln for ln in res.stderr.splitlines() if ln.startswith("error:")]
+    problems = lines[:-1]
+    assert len(problems) == 4 and lines[-1].startswith("error: 4 problems found"), lines
+    for key, hint in (("agnet", "did you mean 'agent'"), ("depht_m", "did you mean 'depth_m'"),
+                      ("crewz", "did you mean 'crews'"), ("[windw]", "did you mean 'window'")):
+        assert sum(key in ln and hint in ln for ln in problems) == 1, (key, problems)
+    assert "Traceback" not in res.output
+    # a bad value next to a bad key in the same table: both reported
+    p.write_text(head.replace("depht_m = 0.05", 'depht_m = 0.05\ndepth_m = "deep"'))
+    res = CliRunner().invoke(main, ["check", str(p)])
+    assert res.exit_code == 2
+    assert "depth_m: expected a number" in res.stderr and "did you mean 'depth_m'" in res.stderr
+    assert "4 problems found" in res.stderr

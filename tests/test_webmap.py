@@ -149,17 +149,20 @@ def test_cautions_title_and_agent_shown():
 
 def test_zone_colours_follow_the_dose_scale():
     feats = _data(_page())["zones"]["features"]
-    # doses 0, 15, 55, 118 g/m²: top 118 / 6 classes → step 19.7 → round step 20 g/m²
+    # doses 0, 15, 55, 118 g/m² in the fixed classes 1–20, 20–40, 40–60, 60–100, 100–150, > 150
     assert [f["properties"]["c_dose"] for f in feats] == [wm.NO_DOSE_COLOUR, wm.DOSE_COLOURS[0],
-                                                          wm.DOSE_COLOURS[2], wm.DOSE_COLOURS[5]]
+                                                          wm.DOSE_COLOURS[2], wm.DOSE_COLOURS[4]]
+    assert [f["properties"]["treated"] for f in feats] == [False, True, True, True]
     vc = [f["properties"]["c_verdict"] for f in feats]
     assert vc[1] == vc[2] and len({vc[0], vc[1], vc[3]}) == 3
 
 
 def test_legend_has_units():
     page = _page()
-    assert "Dose (P50, g/m²)" in page
-    assert "0 – 20 g/m²" in page and "100 – 120 g/m²" in page
+    assert "Dose over the day (P50, g/m²)" in page
+    for label in ("1–20 g/m²", "20–40 g/m²", "40–60 g/m²", "60–100 g/m²", "100–150 g/m²",
+                  "&gt; 150 g/m²", "0: no salt (not treated)"):
+        assert label in page, label
 
 
 def test_coordinates_reprojected_to_wgs84():
@@ -192,15 +195,15 @@ def test_observation_wetness_colour_from_lwc():
 
 # --------------------------------------------------------------------------- scale and formatting
 
-@pytest.mark.parametrize("doses, breaks", [
-    ([3, 47, 119], [20, 40, 60, 80, 100, 120]),        # 119/6 = 19.8 → 20
-    ([0.0, 5.9], [1, 2, 3, 4, 5, 6]),                  # 5.9/6 = 0.98 → 1
-    ([61.0], [15, 30, 45, 60, 75, 90]),                # 61/6 = 10.2 → 15 (next round step)
-    ([7.0, 250.0], [50, 100, 150, 200, 250, 300]),     # 250/6 = 41.7 → 50
-    ([], [1, 2, 3, 4, 5, 6]),
-])
-def test_dose_breaks(doses, breaks):
-    assert wm.dose_breaks(doses) == pytest.approx(breaks)
+def test_dose_classes_are_fixed():
+    assert wm.DOSE_BREAKS[:5] == (20.0, 40.0, 60.0, 100.0, 150.0) and wm.DOSE_BREAKS[5] == float("inf")
+    assert wm.dose_class_labels() == ["1–20", "20–40", "40–60", "60–100", "100–150", "> 150"]
+    # the same dose gets the same colour whatever else the plan holds
+    a = _data(_page(zones=_zones(doses=(0.0, 15.0, 55.0, 118.0))))["zones"]["features"]
+    b = _data(_page(zones=_zones(doses=(0.0, 15.0, 55.0, 900.0))))["zones"]["features"]
+    assert [f["properties"]["c_dose"] for f in a][:3] == [f["properties"]["c_dose"] for f in b][:3]
+    assert wm.dose_colour(150.0) == wm.DOSE_COLOURS[4] and wm.dose_colour(150.5) == wm.DOSE_COLOURS[5]
+    assert wm.dose_colour(1e6) == wm.DOSE_COLOURS[5] and wm.dose_colour(0.5) == wm.DOSE_COLOURS[0]
 
 
 def test_dose_colour_edges():
@@ -345,3 +348,55 @@ def test_write_map_html_atomic(tmp_path):
     assert [p.name for p in tmp_path.iterdir()] == ["map.html"]   # no temporary file left
     with pytest.raises(OutputError):
         write_text_atomic(tmp_path / "missing" / "map.html", "<html></html>", what="map")
+
+
+# --------------------------------------------------------------------------- for people on the hill
+
+def test_popup_leads_with_the_crew_facts():
+    from courseplan.render.layers import zone_lead
+
+    row = {"zone_id": 7, "section": "250–500 m", "verdict": "treat-in-passes",
+           "advice": "Salt again at the times shown.",
+           "passes": 2, "pass_times": "06:42; 12:13", "max_pass_g_m2": 77.9, "dose_g_m2": 114.1,
+           "dose_p90_g_m2": 123.4, "hard_until": "12:50", "bags": 72, "crew": 1}
+    lead = zone_lead(row)
+    assert lead["title"] == "Zone 7 · 250–500 m" and lead["treated"] is True
+    assert dict(lead["lines"]) == {"What to do": "Salt again at the times shown.",
+                                   "Passes": "2 — spread at 06:42 and 12:13", "Per pass": "up to 78 g/m²",
+                                   "Hard until": "12:50", "Day total": "114 g/m² (P90 123 g/m²)",
+                                   "Bags": "72 at the depot of crew 1"}
+    held = zone_lead({**row, "passes": 3, "pass_times": "06:00; 10:00; 12:00", "hard_until": "end of day"})
+    assert dict(held["lines"])["Passes"] == "3 — spread at 06:00, 10:00 and 12:00"
+    assert dict(held["lines"])["Hard until"].startswith("the end of the day")
+    none = zone_lead({"zone_id": 3, "dose_g_m2": 0.0, "passes": 0, "verdict": "water-first",
+                      "advice": "Drain."})
+    assert none["treated"] is False and ("Salt", "none in this zone") in none["lines"]
+
+
+def test_popup_page_folds_the_details_and_fits_small_screens():
+    page = _page()
+    feats = _data(page)["zones"]["features"]
+    assert feats[1]["properties"]["title"] == "Zone 2" and feats[1]["properties"]["lead"]
+    script = page.split("<script>")[-1]
+    assert 'el("details")' in script and 'el("summary"' in script       # details folded below the lead
+    assert "window.innerWidth-70" in script                               # popups narrower than the screen
+    assert "max-width:calc(100vw - 80px)" in page
+    vp = re.search(r'<meta name="viewport" content="([^"]+)">', page).group(1)
+    assert "user-scalable=no" not in vp and "maximum-scale=1" not in vp   # pinch zoom stays allowed
+
+
+def test_untreated_zones_are_hatched_and_outlined():
+    page = _page()
+    assert 'id="cp-hatch"' in page and wm.HATCH_SVG in page
+    assert 'fillColor:"url(#cp-hatch)"' in page and 'dashArray:"4 3"' in page
+    assert '<span class="sw hatch"></span>0: no salt' in page
+
+
+def test_print_stylesheet_one_a4_page_without_controls():
+    css = page_css = _page()
+    css = page_css[page_css.index("@media print"):]
+    assert "@page{size:A4 portrait" in css
+    for hidden in (".leaflet-control-zoom", ".leaflet-control-layers", ".maplegend"):
+        assert hidden in css.split("{display:none!important}")[0]
+    assert ".leaflet-control-scale{display:block!important}" in css and "#legend{" in css
+    assert 'addEventListener("beforeprint", refit)' in page_css

@@ -62,6 +62,20 @@ def restore_signal_handlers(old: dict) -> None:
             pass
 
 
+def problem_lines(exc) -> list[str]:
+    """The one-line messages of a library error: one per problem (a ProblemList ends with its count)."""
+    from courseplan.errors import ObservationError, ProblemList
+
+    if isinstance(exc, ProblemList):
+        lines = []
+        for p in exc.problems:
+            lines += (p.problems if isinstance(p, ObservationError) and p.problems else [p.line()])
+        return lines + [exc.line()]
+    if isinstance(exc, ObservationError):
+        return exc.problems or [exc.line()]
+    return [exc.line()]
+
+
 def guarded(fn):
     """Turn library errors into one line each and a non-zero exit (tracebacks only with --debug)."""
 
@@ -79,25 +93,14 @@ def guarded(fn):
 
 def _call(fn, args, kwargs, debug):
     """Run one command, turning errors into lines and exit codes."""
-    from courseplan.errors import CourseplanError, ObservationError, ProblemList
+    from courseplan.errors import CourseplanError
 
     try:
         return fn(*args, **kwargs)
-    except ProblemList as exc:
-        if debug:
-            raise
-        lines = []
-        for p in exc.problems:
-            lines += (p.problems if isinstance(p, ObservationError) and p.problems else [p.line()])
-        _fail(lines + [exc.line()])
-    except ObservationError as exc:
-        if debug:
-            raise
-        _fail(exc.problems or [exc.line()])
     except CourseplanError as exc:
         if debug:
             raise
-        _fail([exc.line()])
+        _fail(problem_lines(exc))
     except KeyboardInterrupt:
         click.echo(INTERRUPTED_LINE, err=True)
         sys.exit(EXIT_INTERRUPTED)

@@ -13,8 +13,12 @@ import sys
 import click
 
 from courseplan.cli.agents import agents_command
-from courseplan.cli.common import (EXIT_INTERRUPTED, INTERRUPTED_LINE, install_signal_handlers,
-                                   restore_signal_handlers)
+from courseplan.cli.common import (
+    EXIT_INTERRUPTED,
+    INTERRUPTED_LINE,
+    install_signal_handlers,
+    restore_signal_handlers,
+)
 from courseplan.cli.plan import check_command, plan_command
 from courseplan.cli.sun import sun_command
 

@@ -7,7 +7,11 @@ from pathlib import Path
 
 import click
 
-from courseplan.cli.common import EXIT_SHORTFALL, debug_option, guarded
+from courseplan.cli.common import EXIT_SHORTFALL, debug_option, guarded, problem_lines
+from courseplan.cli.output import echo_json, json_option, print_wrapped, stderr_console, stdout_console
+
+WIDE_COLUMNS = 150  # the per-zone table is printed unasked from this terminal width on
+OUTPUT_FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
 
 
 def _input_options(f):
@@ -79,86 +83,185 @@ def _with_date(s):
 @click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path), help="Output folder (new).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output folder.")
 @click.option("--quiet", is_flag=True, help="Print only errors.")
+@click.option("--zones", "show_zones", is_flag=True,
+              help=f"Also print the per-zone table (shown anyway on terminals of {WIDE_COLUMNS}+ columns).")
+@json_option("Print the plan summary (as in summary.json) as JSON on stdout; messages go to stderr.")
 @guarded
-def plan_command(plan_file, out_dir, overwrite, quiet, debug, **kw):
+def plan_command(plan_file, out_dir, overwrite, quiet, show_zones, as_json, debug, **kw):
     """Make a treatment plan: zones, doses, order, map, GeoPackage and crew sheets."""
-    from rich.console import Console
-
     from courseplan.api import plan as run
 
     s = build_settings(plan_file, **kw)
     s, note = _with_date(s)
-    con = Console(stderr=True, quiet=quiet)
+    err = stderr_console(quiet=quiet)
     if note:
-        from rich.markup import escape
-
-        con.print(f"[yellow]note:[/] {escape(note)}")
-    with con.status("planning…") as status:
+        print_wrapped(err, note, prefix="note: ", prefix_style="yellow")
+    with err.status("planning…") as status:
         result = run(s, out_dir, overwrite=overwrite, progress=lambda name: status.update(f"{name}…"))
+    if as_json:
+        from courseplan.io.outputs import summary_dict
+
+        echo_json(summary_dict(result))
+        if result.shortfall is not None:
+            sys.exit(EXIT_SHORTFALL)
+        return
     if not quiet:
-        render_result(result, out_dir)
+        render_result(result, out_dir, show_zones=show_zones)
     if result.shortfall is not None:
         click.echo(f"shortfall: the crews cannot do this plan in time (outputs written; exit {EXIT_SHORTFALL})",
                    err=True)
         sys.exit(EXIT_SHORTFALL)
 
 
-def render_result(result, out_dir: Path) -> None:
-    """Print the short table of zones and totals."""
-    from rich.console import Console
-    from rich.table import Table
-
-    con = Console()
-    z = result.zones
-    t = Table(title=f"{result.settings.plan.name} — {result.settings.plan.date} — {result.agent.label}",
-              show_lines=False)
-    for h, j in (("zone", "right"), ("section", "left"), ("exposure", "left"), ("snow", "left"),
-                 ("area m²", "right"), ("dose g/m²", "right"), ("P90", "right"), ("passes", "right"),
-                 ("kg", "right"), ("crew", "right"), ("verdict", "left")):
-        t.add_column(h, justify=j)
-    for r in z.itertuples():
-        t.add_row(str(r.zone_id), str(r.section), str(r.exposure_class),
-                  f"{r.wetness} {r.lwc_pct:.1f} % ({r.snow_source})", f"{r.area_m2:,.0f}", f"{r.dose_g_m2:.0f}",
-                  f"{r.dose_p90_g_m2:.0f}", str(r.passes), f"{r.product_kg:,.1f}", str(getattr(r, "crew", "")),
-                  str(r.verdict))
-    con.print(t)
+def summary_lines(result, out_dir: Path) -> list[tuple[str, str, str | None]]:
+    """The compact summary as ``(prefix, text, style)`` entries (one entry may wrap to several lines)."""
     tot = result.totals()
     o = result.logistics.order
-    con.print(f"course {tot['course_area_m2']:,.0f} m² map, {tot['course_surface_area_m2']:,.0f} m² snow surface; "
-              f"{tot['treated_zone_count']} of {tot['zone_count']} zones treated")
-    con.print(f"[bold]product: {tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90); "
-              f"order {o.order_kg:,.0f} kg = {o.tonnes:.2f} t[/]  nitrogen {tot['nitrogen_kg']:,.1f} kg, "
-              f"chloride {tot['chloride_kg']:,.1f} kg")
-    from rich.markup import escape
-
+    log = result.logistics.summary()
+    pl = result.settings.plan
+    out: list[tuple[str, str, str | None]] = [
+        ("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold"),
+        ("product: ", f"{tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90)",
+         "bold")]
+    packs = ", ".join(f"{p['count']} {p['kind']}{'s' if p['count'] != 1 else ''} of {p['size_kg']:g} kg"
+                      for p in (log.get("order") or {}).get("packages", []) if p.get("count"))
+    pallets = f" on {o.pallets} pallets" if getattr(o, "pallets", None) else ""
+    out.append(("order: ", f"{o.order_kg:,.0f} kg = {o.tonnes:.2f} t"
+                + (f": {packs}{pallets}" if packs else ""), None))
+    crews = (log.get("crews") or {}).get("count", 0)
+    verdicts = ", ".join(f"{k} {v}" for k, v in tot["verdicts"].items())
+    out.append(("zones: ", f"{tot['treated_zone_count']} of {tot['zone_count']} treated ({verdicts}); "
+                f"{crews} crew{'s' if crews != 1 else ''}", None))
+    out.append(("course: ", f"{tot['course_area_m2']:,.0f} m² map, {tot['course_surface_area_m2']:,.0f} m² "
+                f"snow surface; nitrogen {tot['nitrogen_kg']:,.1f} kg, chloride {tot['chloride_kg']:,.1f} kg",
+                None))
     for n in result.notes:
-        con.print(f"[yellow]note:[/] {escape(n)}")
-    con.print(f"written to {out_dir}/: zones.gpkg, map.html, summary.json, order.pdf, crews.pdf")
-    con.print("[italic]" + result.cautions[0] + " " + result.cautions[1] + "[/]")
+        out.append(("note: ", n, None))
+    out.append(("written to ", f"{out_dir}/: " + ", ".join(OUTPUT_FILES), None))
+    for c in result.cautions:
+        out.append(("caution: ", c, "italic"))
+    return out
+
+
+def _words(label) -> str:
+    """A class or verdict label with spaces for hyphens, so a narrow column wraps it between words."""
+    return str(label).replace("-", " ")
+
+
+def fit_widths(natural: list[int], least: list[int], room: int) -> list[int] | None:
+    """Widths for the text columns of a table: natural when they fit in *room*, else at least *least*
+    each (their longest word) plus a share of what is left; None when even *least* does not fit.
+    """
+    if sum(natural) <= room:
+        return list(natural)
+    if sum(least) > room:
+        return None
+    w = list(least)
+    spare = room - sum(w)
+    while spare > 0:  # one column at a time, the one furthest below its natural width first
+        i = max(range(len(w)), key=lambda k: natural[k] - w[k])
+        if natural[i] <= w[i]:
+            break
+        w[i] += 1
+        spare -= 1
+    return w
+
+
+def zones_table(result, width: int):
+    """The per-zone table within *width* columns.
+
+    Numbers, and text holding numbers (the section), never wrap nor shrink; the word columns
+    (exposure, snow, verdict) wrap between words, and are left out, snow first, on a terminal too
+    narrow for their longest word.
+    """
+    from rich import box
+    from rich.table import Table
+
+    pl = result.settings.plan
+    rows = []
+    for r in result.zones.itertuples():
+        rows.append((str(r.zone_id), str(r.section), _words(r.exposure_class), _words(r.wetness),
+                     f"{r.lwc_pct:.1f}", f"{r.area_m2:,.0f}", f"{r.dose_g_m2:.0f}", f"{r.dose_p90_g_m2:.0f}",
+                     str(r.passes), f"{r.product_kg:,.0f}", str(getattr(r, "crew", "")), _words(r.verdict)))
+    cols = [("zone", True), ("section", True), ("exposure", False), ("snow", False), ("LWC\n%", True),
+            ("area\nm²", True), ("dose\ng/m²", True), ("P90\ng/m²", True), ("passes", True), ("kg", True),
+            ("crew", True), ("verdict", False)]
+    natural = [max(len(x) for cell in [h] + [row[i] for row in rows] for x in cell.split("\n"))
+               for i, (h, _) in enumerate(cols)]
+    least = [max(len(x) for cell in [h] + [row[i] for row in rows] for x in cell.split())
+             for i, (h, _) in enumerate(cols)]
+    keep = list(range(len(cols)))
+    while True:
+        text = [i for i in keep if not cols[i][1]]
+        room = width - sum(natural[i] for i in keep if cols[i][1]) - (len(keep) - 1)
+        fit = fit_widths([natural[i] for i in text], [least[i] for i in text], room)
+        if fit is not None or not text:
+            break
+        keep.remove(next(i for i in (3, 2, 11) if i in keep))  # snow, then exposure, then verdict
+    fixed = dict(zip(text, fit or [], strict=False))
+    t = Table(title=f"zones — {pl.name}", box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False,
+              padding=(0, 0), title_justify="left")
+    for i in keep:
+        h, numeric = cols[i]
+        if numeric:
+            t.add_column(h, justify="left" if i == 1 else "right", no_wrap=True, min_width=natural[i])
+        else:
+            t.add_column(h, justify="left", overflow="fold", width=fixed.get(i))
+    for row in rows:
+        t.add_row(*(row[i] for i in keep))
+    return t
+
+
+def render_result(result, out_dir: Path, *, show_zones: bool = False) -> None:
+    """Print the compact summary, and the per-zone table when asked or when the terminal is wide."""
+    con = stdout_console()
+    if show_zones or con.width >= WIDE_COLUMNS:
+        con.print(zones_table(result, con.width))
+    for prefix, text, style in summary_lines(result, out_dir):
+        pstyle = {"note: ": "yellow", "caution: ": "italic"}.get(prefix, style)
+        print_wrapped(con, text, prefix=prefix, style=style, prefix_style=pstyle)
 
 
 @click.command("check")
 @click.argument("plan_file", required=False, type=click.Path(path_type=Path))
 @_input_options
 @debug_option
+@json_option("Print {ok, problems, warnings, zones, total_product_kg} as JSON on stdout; "
+             "messages go to stderr.")
 @guarded
-def check_command(plan_file, debug, **kw):
+def check_command(plan_file, as_json, debug, **kw):
     """Check every input and setting of a plan; list all problems at once."""
     from courseplan.api import check
+    from courseplan.errors import CourseplanError
 
-    s = build_settings(plan_file, **kw)
-    s, note = _with_date(s)
-    input_notes, result = check(s)
-    for n in input_notes:
-        click.echo(f"warning: {n}")
-    for n in result.notes:
-        click.echo(f"warning: {n}")
-    if result.shortfall is not None:
-        sf = result.shortfall
-        click.echo(f"problem: {sf['crews']} crew(s) cannot do this plan in time; "
-                   f"{sf['crews_needed'] or 'more than 50'} crews would (see the SHORTFALL warning)")
+    try:
+        s = build_settings(plan_file, **kw)
+        s, note = _with_date(s)
+        input_notes, result = check(s)
+    except CourseplanError as exc:
+        if as_json:
+            echo_json({"ok": False, "problems": problem_lines(exc), "warnings": []})
+        raise
+    warnings = list(input_notes) + list(result.notes)
+    total = result.totals()["total_product_kg"]
+    if as_json:
+        for n in warnings:
+            click.echo(f"warning: {n}", err=True)
+        echo_json({"ok": result.shortfall is None, "problems": [], "warnings": warnings,
+                   "zones": len(result.zones), "total_product_kg": total, "agent": result.agent.name,
+                   "shortfall": result.shortfall})
+        if result.shortfall is not None:
+            sys.exit(EXIT_SHORTFALL)
+        return
+    sf = result.shortfall
+    con = stdout_console()
+    for n in warnings:
+        print_wrapped(con, n, prefix="warning: ", prefix_style="yellow")
+    print_wrapped(con, f"{len(result.zones)} zones, {total:,.0f} kg of {result.agent.label} (P50); "
+                  "nothing written", prefix="ok: ", prefix_style="green")
+    if sf is not None:
+        print_wrapped(con, f"{sf['crews']} crew(s) cannot do this plan in time; "
+                      f"{sf['crews_needed'] or 'more than 50'} crews would (see the SHORTFALL warning)",
+                      prefix="problem: ", prefix_style="red")
         sys.exit(EXIT_SHORTFALL)
-    click.echo(f"ok: {len(result.zones)} zones, {result.totals()['total_product_kg']:,.0f} kg of "
-               f"{result.agent.label} (P50); nothing written")
-
 

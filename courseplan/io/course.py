@@ -13,7 +13,6 @@ from shapely.geometry.base import BaseGeometry
 from courseplan.errors import CRSError, GeometryError, InputError
 from courseplan.io.files import check_readable
 
-
 _SET_CRS = ("with geopandas (on pyogrio): python -c \"import geopandas as g; "
             "g.read_file('in.shp').set_crs({epsg}, allow_override=True).to_file('out.gpkg')\"")
 """Fix hint for a vector file's CRS, with the project's own dependencies (no GDAL command-line tools)."""

@@ -4,7 +4,10 @@
 - :func:`refuse_existing` — the "output exists" refusal shared by every command;
 - :func:`write_atomic` — write through a temporary file beside the target, then ``os.replace``;
   nothing half-written is ever left under the target's name, whatever interrupts the write;
-- :func:`write_text_atomic`, :func:`write_bytes_atomic` — the two common cases.
+- :func:`write_text_atomic`, :func:`write_bytes_atomic` — the two common cases;
+- :func:`file_mode`, :func:`folder_mode` — the modes a plain ``open``/``mkdir`` would give under the
+  process umask (0644 and 0755 under the usual 022), which the temporary files and folders
+  (0600 and 0700 from :mod:`tempfile`) get before they are moved into place.
 """
 
 from __future__ import annotations
@@ -49,6 +52,30 @@ def refuse_existing(path: Path, overwrite: bool, *, kind: str = "file") -> None:
         raise OutputError("the output path is a folder", where=str(p), fix="choose a file name")
 
 
+def process_umask() -> int:
+    """The process umask, read without changing it where the system allows (Linux ``/proc``)."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError, IndexError):
+        pass
+    old = os.umask(0o022)  # elsewhere: the classic set-and-restore
+    os.umask(old)
+    return old
+
+
+def file_mode() -> int:
+    """Mode of a new output file: 0666 less the umask (0644 under umask 022)."""
+    return 0o666 & ~process_umask()
+
+
+def folder_mode() -> int:
+    """Mode of a new output folder: 0777 less the umask (0755 under umask 022)."""
+    return 0o777 & ~process_umask()
+
+
 def write_atomic(path: Path, write: Callable[[Path], object], *, what: str = "file") -> Path:
     """Call ``write(tmp)`` on a temporary path beside *path*, then move it into place.
 
@@ -67,6 +94,7 @@ def write_atomic(path: Path, write: Callable[[Path], object], *, what: str = "fi
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
         os.close(fd)
         write(Path(tmp))
+        os.chmod(tmp, file_mode())  # mkstemp made it 0600
         os.replace(tmp, target)
         tmp = None
     except OSError as exc:

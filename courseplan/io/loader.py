@@ -12,7 +12,6 @@ from courseplan.geo.crs import is_metric, utm_crs
 from courseplan.pipeline import LoadedInputs
 from courseplan.settings import PlanSettings
 
-
 #: Largest accepted difference between the course area in the working CRS and its geodesic area.
 AREA_TOLERANCE = 0.005
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 import shutil
 import tempfile
 from pathlib import Path
@@ -23,10 +24,19 @@ from courseplan import __version__
 from courseplan.columns import ALL as ALL_COLUMNS
 from courseplan.columns import NO_UNIT, unit
 from courseplan.errors import OutputError
-from courseplan.io.files import (OUTPUT_MARKER, refuse_existing, refuse_foreign_folder, write_bytes_atomic,
-                                 write_text_atomic)
+from courseplan.io.files import (
+    OUTPUT_MARKER,
+    file_mode,
+    folder_mode,
+    refuse_existing,
+    refuse_foreign_folder,
+    write_bytes_atomic,
+    write_text_atomic,
+)
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
+SCHEMA_VERSION = "1.0"
+"""Version of ``summary.json`` (its JSON Schema: ``courseplan/schema/summary.schema.json``)."""
 
 
 def _plain(v: Any) -> Any:
@@ -46,7 +56,11 @@ def _plain(v: Any) -> Any:
 
 
 def summary_dict(result) -> dict[str, Any]:
-    """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions."""
+    """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions.
+
+    Its fields are fixed by ``courseplan/schema/summary.schema.json`` (``schema_version``); a new
+    field needs the schema, ``SCHEMA_VERSION`` and ``docs/outputs.md`` changed with it.
+    """
     z = result.zones
     cols = [c for c in z.columns if c != "geometry"]
     zones = []
@@ -54,6 +68,7 @@ def summary_dict(result) -> dict[str, Any]:
         zones.append({k: _plain(v) for k, v in rec.items()})
     log = result.logistics.summary()
     out = {
+        "schema_version": SCHEMA_VERSION,
         "courseplan_version": __version__,
         "plan": result.settings.plan.name,
         "date": result.settings.plan.date,
@@ -217,6 +232,9 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
                           "this folder\n", what="output marker")
+        for f in tmp.iterdir():  # as a plain mkdir/open would make them under the umask (0755/0644)
+            os.chmod(f, folder_mode() if f.is_dir() else file_mode())
+        os.chmod(tmp, folder_mode())  # mkdtemp made it 0700
         old = None
         if out_dir.exists():
             refuse_foreign_folder(out_dir)

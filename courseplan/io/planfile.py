@@ -9,7 +9,6 @@ from courseplan.errors import InputError, SettingsError
 from courseplan.io.files import check_readable, read_text
 from courseplan.settings import PlanSettings, settings_from_mapping
 
-
 _READ: list[Path] = []
 
 

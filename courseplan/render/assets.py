@@ -58,7 +58,16 @@ h2{font-size:13px;margin:12px 0 4px;color:#4a504b}
 .dot{display:inline-block;width:11px;height:11px;border-radius:50%;border:2px solid #1b2f4a;flex:none}
 .ramp{height:12px;border:1px solid #7d8079;margin:2px 0}
 .note{color:#5a605b;font-size:12px}
-.pop h3{font-size:14px;margin:0 0 4px}
+.pop h3{font-size:15px;margin:0 0 2px}
+.pop .verdict{display:inline-block;font-size:12px;font-weight:600;padding:0 6px;border-radius:3px;
+ background:#e8ebe4;border:1px solid #b8bcb3;margin:0 0 6px}
+.pop table.lead{font-size:13.5px;margin:0 0 4px}
+.pop table.lead td.k{font-weight:600;color:#2f3530}
+.pop details{margin-top:4px;border-top:1px solid #d5d8d0;padding-top:3px}
+.pop details summary{cursor:pointer;font-size:12px;color:#4a504b}
+.pop td.v{overflow-wrap:anywhere}
+.leaflet-popup-content{max-width:calc(100vw - 80px)}
+.sw.hatch{background:repeating-linear-gradient(45deg,#4d524c 0 2px,#eef0ea 2px 5px);border-color:#2b2f2a}
 .pop h4{font-size:11px;margin:6px 0 2px;text-transform:uppercase;color:#4a504b}
 .pop table{border-collapse:collapse;font-size:12px}
 .pop td{padding:0 6px 0 0;vertical-align:top}
@@ -70,7 +79,27 @@ h2{font-size:13px;margin:12px 0 4px;color:#4a504b}
  #map{flex:none;height:68vh;order:1}
  #side{width:auto;order:2;border-right:0;border-top:1px solid #c9cbc2;overflow:visible}
 }
-@media print{#wrap{display:block}#map{height:60vh}#side{width:auto;border:0}}
+@media print{
+ @page{size:A4 portrait;margin:10mm}
+ html,body{height:auto;background:#fff}
+ body{font-size:9pt}
+ #wrap{display:flex;flex-direction:column;height:auto}
+ #side{display:contents}
+ #side h1{order:0;font-size:14pt;margin:0}
+ #side .sub{order:1;margin:0 0 2mm}
+ #map{order:2;flex:none;width:190mm;height:150mm;border:1px solid #7d8079;break-inside:avoid}
+ #legend{order:3;column-count:3;column-gap:6mm;margin-top:2mm}
+ #legend h2{font-size:8.5pt;margin:0 0 1mm;break-after:avoid}
+ #legend .row{margin:0;font-size:8pt;break-inside:avoid}
+ .warn{order:4;margin:2mm 0 0;padding:1mm 2mm;break-inside:avoid}
+ .cautions{font-size:7.5pt;line-height:1.2;columns:2;column-gap:6mm}
+ #side>p.note{order:5;font-size:7pt}
+ .leaflet-control-zoom,.leaflet-control-layers,.leaflet-control-attribution,.maplegend,
+ .leaflet-popup-pane{display:none!important}
+ .leaflet-control-scale{display:block!important}
+ .sw,.dot,.ramp,.lbl{-webkit-print-color-adjust:exact;print-color-adjust:exact}
+ #map,#map *{-webkit-print-color-adjust:exact;print-color-adjust:exact}
+}
 """
 
 PAGE_JS = r"""
@@ -81,8 +110,13 @@ function el(tag, cls, text){var e=document.createElement(tag); if(cls){e.classNa
   if(text!==undefined&&text!==null){e.textContent=String(text);} return e;}
 function table(rows){var t=el("table"); rows.forEach(function(r){var tr=el("tr");
   tr.appendChild(el("td","k",r[0])); tr.appendChild(el("td","v",r[1])); t.appendChild(tr);}); return t;}
-function zonePopup(p){var d=el("div","pop"); d.appendChild(el("h3",null,"Zone "+p.id+" \u2014 "+p.verdict));
-  p.sections.forEach(function(s){d.appendChild(el("h4",null,s[0])); d.appendChild(table(s[1]));}); return d;}
+function zonePopup(p){var d=el("div","pop"); d.appendChild(el("h3",null,p.title||("Zone "+p.id)));
+  d.appendChild(el("div","verdict",p.verdict));
+  if(p.lead&&p.lead.length){var t=table(p.lead); t.className="lead"; d.appendChild(t);}
+  var det=el("details"); det.appendChild(el("summary",null,"All values of zone "+p.id));
+  p.sections.forEach(function(s){det.appendChild(el("h4",null,s[0])); det.appendChild(table(s[1]));});
+  d.appendChild(det); return d;}
+function popW(w){return Math.max(200, Math.min(w, window.innerWidth-70));}
 function obsPopup(p){var d=el("div","pop"); d.appendChild(el("h3",null,"Observation "+p.id));
   d.appendChild(table(p.rows));
   if(p.note){d.appendChild(el("h4",null,"note")); d.appendChild(el("div","note",p.note));}
@@ -94,16 +128,19 @@ if (D.context){
   var ctx = L.imageOverlay(D.context.uri, D.context.bounds, {opacity:D.context.opacity, interactive:false});
   ctx.addTo(map); overlays[D.context.name] = ctx;
 }
-function zoneLayer(colourKey, register){
+function zoneLayer(colourKey, register, hatch){
   return L.geoJSON(D.zones, {
-    style:function(f){return {color:"#3b3f3a", weight:0.7, opacity:0.9, fillColor:f.properties[colourKey],
-                              fillOpacity:D.fillOpacity};},
+    style:function(f){var p=f.properties;
+      if(hatch && p.treated===false){return {color:"#1f231e", weight:1.6, opacity:1, dashArray:"4 3",
+                                              fillColor:"url(#cp-hatch)", fillOpacity:0.95};}
+      return {color:"#3b3f3a", weight:0.7, opacity:0.9, fillColor:p[colourKey], fillOpacity:D.fillOpacity};},
     onEachFeature:function(f, layer){
-      layer.bindPopup(function(){return zonePopup(f.properties);}, {maxWidth:340, maxHeight:420});
+      layer.bindPopup(function(){return zonePopup(f.properties);},
+                      {maxWidth:popW(340), minWidth:Math.min(220, popW(340)), maxHeight:440});
       if(register){byZone[String(f.properties.id)] = layer;}}
   });
 }
-var zDose = zoneLayer("c_dose", true), zVerdict = zoneLayer("c_verdict", false);
+var zDose = zoneLayer("c_dose", true, true), zVerdict = zoneLayer("c_verdict", false, false);
 base["Zones by dose"] = zDose; base["Zones by verdict"] = zVerdict; zDose.addTo(map);
 var course = L.layerGroup();
 if (D.course){ L.geoJSON(D.course, {interactive:false, style:function(){return {color:"#111", weight:1.3,
@@ -126,7 +163,7 @@ if (D.obs){
     pointToLayer:function(f, ll){return L.circleMarker(ll, {radius:6, color:"#1b2f4a", weight:2,
       fillColor:f.properties.colour, fillOpacity:1});},
     onEachFeature:function(f, layer){
-      layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:300, maxHeight:420});
+      layer.bindPopup(function(){return obsPopup(f.properties);}, {maxWidth:popW(300), maxHeight:420});
       byObs[String(f.properties.id)] = layer;}
   });
   obs.addTo(map); overlays["Observations"] = obs;
@@ -143,9 +180,18 @@ map.fitBounds(D.bounds, {padding:[12,12]});
 function openFromHash(){
   var m = /^#(zone|obs)=(.+)$/.exec(window.location.hash); if(!m){return;}
   var key = decodeURIComponent(m[2]); var layer = (m[1]==="zone" ? byZone : byObs)[key];
-  if(layer){ layer.openPopup(layer.getBounds ? layer.getBounds().getCenter() : undefined); }
+  if(!layer){return;}
+  var at = layer.getBounds ? layer.getBounds().getCenter() : layer.getLatLng();
+  map.panTo(at, {animate:false});  // centre it first, so the whole popup is on a small screen at once
+  layer.openPopup(at);
 }
 window.addEventListener("hashchange", openFromHash); openFromHash();
+function refit(){map.invalidateSize({animate:false, pan:false});
+  map.fitBounds(D.bounds, {padding:[12,12], animate:false});}
+window.addEventListener("beforeprint", refit); window.addEventListener("afterprint", refit);
+if(window.matchMedia){var mq=window.matchMedia("print");
+  if(mq.addEventListener){mq.addEventListener("change", refit);}
+  else if(mq.addListener){mq.addListener(refit);}}
 window.courseplanMap = map;
 })();
 """

@@ -2,8 +2,9 @@
 
 The functions here turn the plan's tables into the JSON data block that the page's script draws
 (:data:`courseplan.render.assets.PAGE_JS`): geometry simplified for display
-(:func:`simplify_for_display`) and reprojected to longitude/latitude, and popup content as text with
-units (:func:`zone_popup_sections`, :func:`format_value`).  All user-supplied text stays plain data;
+(:func:`simplify_for_display`) and reprojected to longitude/latitude, and popup content as text: a
+lead in the words a crew uses (:func:`zone_lead`), then every value with its unit
+(:func:`zone_popup_sections`, :func:`format_value`).  All user-supplied text stays plain data;
 :func:`json_for_script` makes the JSON safe inside a ``<script>`` element.
 
 Notes
@@ -122,6 +123,63 @@ def zone_popup_sections(row: dict[str, Any], units: dict[str, str] | None = None
     return [(k, v) for k, v in sections.items()]
 
 
+def _hhmm_list(text: Any) -> list[str]:
+    if text is None:
+        return []
+    return [t.strip() for t in str(text).split(";") if t.strip()]
+
+
+def _and(items: list[str]) -> str:
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
+
+
+def _grams(v: Any) -> str | None:
+    v = scalar(v)
+    return f"{float(v):.0f} g/m²" if isinstance(v, (int, float)) and math.isfinite(float(v)) else None
+
+
+def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
+    """What a crew reads first in a zone's popup: a title and a few lines in the crew's words.
+
+    Title: zone number and section label.  Lines (label, text), each only when its column is there:
+    what to do (the advice), the passes and when to spread them, the largest dose of one pass, when
+    the zone stops holding (``hard_until``), the day's total dose and the bags.
+    """
+    r = {k: scalar(v) for k, v in row.items()}
+    zid = r.get("zone_id")
+    title = f"Zone {zid}" if zid is not None else "Zone"
+    if r.get("section"):
+        title += f" · {r['section']}"
+    lines: list[tuple[str, str]] = []
+    passes = r.get("passes")
+    treated = (isinstance(r.get("dose_g_m2"), (int, float)) and float(r["dose_g_m2"]) > 0) or bool(passes)
+    if r.get("advice"):
+        lines.append(("What to do", str(r["advice"])))
+    if treated:
+        times = _hhmm_list(r.get("pass_times"))
+        if isinstance(passes, int) and passes > 0:
+            when = f" — spread at {_and(times)}" if times else ""
+            lines.append(("Passes", f"{passes}{when}"))
+        per_pass = _grams(r.get("max_pass_g_m2"))
+        if per_pass:
+            lines.append(("Per pass", f"up to {per_pass}"))
+        hu = r.get("hard_until")
+        if hu not in (None, ""):
+            lines.append(("Hard until", "the end of the day (past the last run)" if str(hu) == "end of day"
+                          else str(hu)))
+        total, p90 = _grams(r.get("dose_g_m2")), _grams(r.get("dose_p90_g_m2"))
+        if total:
+            lines.append(("Day total", total + (f" (P90 {p90})" if p90 else "")))
+        bags = r.get("bags")
+        if isinstance(bags, int):
+            crew = f" of crew {r['crew']}" if r.get("crew") else ""
+            lines.append(("Bags", f"{bags} at the depot{crew}"))
+    else:
+        lines.append(("Salt", "none in this zone"))
+    return {"title": title, "verdict": str(r.get("verdict") or "—"), "treated": bool(treated),
+            "lines": lines}
+
+
 def json_for_script(obj: Any) -> str:
     """JSON safe inside an HTML ``<script>`` element (no ``<``, ``>``, ``&`` or line separators)."""
     s = json.dumps(obj, ensure_ascii=False, separators=(",", ":"), allow_nan=False)
@@ -191,7 +249,7 @@ def _to_lonlat(geoms: np.ndarray, crs: Any) -> list[Any]:
 
 def zone_properties(rows: list[dict[str, Any]], dose_fills: list[str], verdict_fills: dict[str, str],
                     units: dict[str, str] | None = None) -> list[dict[str, Any]]:
-    """Properties of the zone features: id, verdict, both fill colours and the popup sections.
+    """Properties of the zone features: id, verdict, both fill colours, the popup's lead and its sections.
 
     Parameters
     ----------
@@ -207,8 +265,10 @@ def zone_properties(rows: list[dict[str, Any]], dose_fills: list[str], verdict_f
     zprops = []
     for i, r in enumerate(rows):
         zid = scalar(r.get("zone_id"))
+        lead = zone_lead(r)
         zprops.append({"id": zid if zid is not None else i + 1,
                        "verdict": str(scalar(r.get("verdict")) or "—"),
+                       "title": lead["title"], "lead": lead["lines"], "treated": lead["treated"],
                        "c_dose": dose_fills[i],
                        "c_verdict": verdict_fills[str(scalar(r.get("verdict")) or "—")],
                        "sections": zone_popup_sections({k: scalar(v) for k, v in r.items()}, units)})
@@ -337,5 +397,5 @@ def observation_layer(observations: geopandas.GeoDataFrame, units: dict[str, str
 
 
 __all__ = ["DisplayGeometry", "OBSERVATION_UNITS", "crew_layer", "display_geometry", "format_value",
-           "json_for_script", "observation_layer", "scalar", "simplify_for_display", "zone_popup_sections",
-           "zone_properties"]
+           "json_for_script", "observation_layer", "scalar", "simplify_for_display", "zone_lead",
+           "zone_popup_sections", "zone_properties"]

@@ -7,10 +7,13 @@ stylesheet needs (the layers icon) as a data URI; there is no tile layer and no 
 address for scripts, stylesheets or images.  A terrain or sun picture of the hill, made by
 :func:`courseplan.render.context.context_from_raster`, is embedded as a PNG data URI for context.
 
-Layers (built by :mod:`courseplan.render.layers`): zones coloured by P50 dose (a colour scale of the
-project's own, legend with units) or by verdict, crews with labels, field observations, the course
-outline with start and finish.  Popups list every zone value with its unit (from
-:mod:`courseplan.columns`) and where the zone's snow state came from.  All user-supplied text (plan and
+Layers (built by :mod:`courseplan.render.layers`): zones coloured by P50 dose in fixed classes
+(:data:`DOSE_BREAKS`, colours of the project's own, legend with units; untreated zones hatched with
+a dark outline) or by verdict, crews with labels, field observations, the course outline with start
+and finish.  A zone's popup leads with its number, section, passes, dose per pass and "hard until" in
+a crew's words; every value with its unit (from :mod:`courseplan.columns`) is folded below.  A print
+stylesheet puts map, legend and scale bar on one A4 page without the controls.
+All user-supplied text (plan and
 zone names, labels, notes) reaches the page either HTML-escaped or as JSON read by the page's script and
 put into the page as text nodes, never as markup.
 
@@ -23,8 +26,6 @@ from __future__ import annotations
 import html
 import math
 from typing import TYPE_CHECKING, Any
-
-import numpy as np
 
 from courseplan import columns as _columns
 from courseplan.errors import GeometryError
@@ -78,48 +79,36 @@ GEOMETRY_BUDGET_CHARS = 560_000
 """Largest size of the page's geometry data before the simplification tolerance is raised."""
 
 
-def _nice_step(x: float) -> float:
-    """Smallest round step (1, 1.5, 2, 2.5, 3, 4, 5, 6 or 8 × 10^k) that is ≥ x."""
-    if not (x > 0 and math.isfinite(x)):
-        return 1.0
-    k = math.floor(math.log10(x))
-    for m in (1.0, 1.5, 2.0, 2.5, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0):
-        if m * 10 ** k >= x * (1 - 1e-12):
-            return m * 10 ** k
-    return 10.0 ** (k + 1)  # pragma: no cover
+DOSE_BREAKS: tuple[float, ...] = (20.0, 40.0, 60.0, 100.0, 150.0, math.inf)
+"""Upper edges of the fixed dose classes [g/m²], the same on every map so that colours compare across
+plans and days: class *i* holds doses in (edge[i-1], edge[i]], the first (0, 20], the last above 150.
+A dose of 0 (no salt) has no class: it is drawn hatched."""
 
 
-def dose_breaks(doses: Any, n_classes: int = len(DOSE_COLOURS)) -> list[float]:
-    """Upper edges of equal, round dose classes covering the largest positive dose.
-
-    Parameters
-    ----------
-    doses
-        Doses [g/m²]; zero, negative and NaN values are ignored.
-    n_classes
-        Number of classes (at most ``len(DOSE_COLOURS)``).
-
-    Returns
-    -------
-    list of float
-        ``n_classes`` upper class edges [g/m²], ascending; class *i* holds doses in
-        (edge[i-1], edge[i]], the first class (0, edge[0]].
-    """
-    d = np.asarray(doses, dtype=float).ravel()
-    d = d[np.isfinite(d) & (d > 0)]
-    top = float(d.max()) if d.size else float(n_classes)
-    step = _nice_step(top / n_classes)
-    return [step * (i + 1) for i in range(n_classes)]
+def dose_class_labels(breaks: tuple[float, ...] = DOSE_BREAKS) -> list[str]:
+    """Legend text of the dose classes, e.g. ``["1–20", "20–40", …, "> 150"]`` (without unit)."""
+    out, lo = [], 0.0
+    for hi in breaks:
+        out.append(f"> {lo:g}" if not math.isfinite(hi) else f"{lo:g}–{hi:g}" if lo > 0 else f"1–{hi:g}")
+        lo = hi
+    return out
 
 
-def dose_colour(dose: float | None, breaks: list[float]) -> str:
-    """Fill colour of a dose [g/m²] on the scale with the given class edges."""
+def dose_colour(dose: float | None, breaks: tuple[float, ...] | list[float] = DOSE_BREAKS) -> str:
+    """Fill colour of a dose [g/m²] in the dose classes with the given upper edges."""
     if dose is None or not math.isfinite(dose) or dose <= 0:
         return NO_DOSE_COLOUR
     for i, edge in enumerate(breaks):
         if dose <= edge * (1 + 1e-9):
             return DOSE_COLOURS[i]
     return DOSE_COLOURS[len(breaks) - 1]
+
+
+HATCH_SVG = ('<svg width="0" height="0" style="position:absolute" aria-hidden="true" focusable="false">'
+             '<defs><pattern id="cp-hatch" patternUnits="userSpaceOnUse" width="7" height="7" '
+             'patternTransform="rotate(45)"><rect width="7" height="7" fill="#eef0ea"/>'
+             '<rect width="2.2" height="7" fill="#4d524c"/></pattern></defs></svg>')
+"""The hatch that untreated zones are filled with (referenced as ``url(#cp-hatch)`` by the page script)."""
 
 
 def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFrame, *, title: str,
@@ -180,7 +169,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
     # --- per-zone properties (independent of the geometry)
     zrows = zones.drop(columns=zones.geometry.name).to_dict("records") if len(zones) else []
     doses = [scalar(r.get("dose_g_m2")) for r in zrows]
-    breaks = dose_breaks([d for d in doses if d is not None])
+    breaks = DOSE_BREAKS
     verdicts: list[str] = []
     for r in zrows:
         v = str(scalar(r.get("verdict")) or "—")
@@ -212,14 +201,11 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
     # --- static parts (escaped)
     esc = html.escape
     dose_unit = esc((units or {}).get("dose_g_m2", _columns.unit("dose_g_m2")) or "g/m²")
-    legend = ['<div class="legend" id="legend">', f"<h2>Dose (P50, {dose_unit})</h2>"]
-    lo = 0.0
-    for c, hi in zip(DOSE_COLOURS, breaks, strict=False):
+    legend = ['<div class="legend" id="legend">', f"<h2>Dose over the day (P50, {dose_unit})</h2>"]
+    for c, label in zip(DOSE_COLOURS, dose_class_labels(breaks), strict=False):
         legend.append(f'<div class="row"><span class="sw" style="background:{c}"></span>'
-                      f"{_fmt_edge(lo)} – {_fmt_edge(hi)} {dose_unit}</div>")
-        lo = hi
-    legend.append(f'<div class="row"><span class="sw" style="background:{NO_DOSE_COLOUR}"></span>'
-                  "no dose (not treated)</div>")
+                      f"{esc(label)} {dose_unit}</div>")
+    legend.append('<div class="row"><span class="sw hatch"></span>0: no salt (not treated)</div>')
     if verdicts:
         legend.append("<h2>Verdict (layer “Zones by verdict”)</h2>")
         for v in verdicts:
@@ -257,6 +243,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
 <style>{PAGE_CSS.replace("__BG__", MAP_BACKGROUND)}</style>
 </head>
 <body>
+{HATCH_SVG}
 <div id="wrap">
 <aside id="side">
 <h1>{esc(title)}</h1>
@@ -281,10 +268,6 @@ inlined; no network needed.</p>
     return page
 
 
-def _fmt_edge(x: float) -> str:
-    return f"{x:g}"
-
-
-__all__ = ["dose_breaks", "dose_colour", "render_map_html", "CONTEXT_OPACITY", "CREW_COLOURS",
-           "DEFAULT_TOLERANCE_M", "DOSE_COLOURS", "GEOMETRY_BUDGET_CHARS", "MAP_BACKGROUND", "NO_DOSE_COLOUR",
-           "VERDICT_COLOURS", "WETNESS_COLOURS", "ZONE_FILL_OPACITY"]
+__all__ = ["dose_class_labels", "dose_colour", "render_map_html", "CONTEXT_OPACITY", "CREW_COLOURS",
+           "DEFAULT_TOLERANCE_M", "DOSE_BREAKS", "DOSE_COLOURS", "GEOMETRY_BUDGET_CHARS", "HATCH_SVG",
+           "MAP_BACKGROUND", "NO_DOSE_COLOUR", "VERDICT_COLOURS", "WETNESS_COLOURS", "ZONE_FILL_OPACITY"]
