@@ -1,4 +1,4 @@
-"""Command line: ``courseplan plan | check | sun | agents``.
+"""Command line: ``courseplan plan | check | sun | agents | calibrate``.
 
 A thin layer: parse, build settings, call one library function (:mod:`courseplan.api`), print.
 Every command shares one error path (:mod:`courseplan.cli.common`): ``error: …`` on one line, exit
@@ -11,6 +11,7 @@ from __future__ import annotations
 import click
 
 from courseplan.cli.agents import agents_command
+from courseplan.cli.calibrate import calibrate_command
 from courseplan.cli.plan import check_command, plan_command
 from courseplan.cli.sun import sun_command
 
@@ -27,5 +28,5 @@ def main() -> None:
     """
 
 
-for _cmd in (plan_command, check_command, sun_command, agents_command):
+for _cmd in (plan_command, check_command, sun_command, agents_command, calibrate_command):
     main.add_command(_cmd)

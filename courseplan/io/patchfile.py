@@ -9,7 +9,7 @@ Columns (names case-insensitive; docs/calibration.md has the full table):
   and ``density_kg_m3``;
 - one row per reading: ``dose_g_m2`` (product, g/m²; equal doses are one rung), ``read_at`` and
   ``result`` (``held`` or ``soft``, or a hardness value with a ``method`` column, recorded but not
-  fitted); optional ``note``.
+  fitted); optional ``note``.  Lines starting with ``#`` are comments.
 
 The patch values (place, time, agent, snow) must agree on every row that gives them.  Every problem is
 one :class:`~courseplan.errors.InputError` naming the file and line.
@@ -18,6 +18,7 @@ one :class:`~courseplan.errors.InputError` naming the file and line.
 from __future__ import annotations
 
 import hashlib
+import io
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -113,11 +114,11 @@ def _number(v: str, col: str, lo: float, hi: float, unit: str, where: str) -> fl
     return x
 
 
-def _one_value(df: pd.DataFrame, col: str, name: str) -> tuple[str | None, int]:
+def _one_value(df: pd.DataFrame, col: str, name: str, lines: list[int]) -> tuple[str | None, int]:
     """The patch value of *col*: the same on every row giving it (None when no row does)."""
     if col not in df.columns:
         return None, 0
-    vals = [(i + 2, str(v).strip()) for i, v in enumerate(df[col]) if str(v).strip() != ""]
+    vals = [(lines[i], str(v).strip()) for i, v in enumerate(df[col]) if str(v).strip() != ""]
     if not vals:
         return None, 0
     first = vals[0][1]
@@ -154,11 +155,19 @@ def read_patch(path: str | Path, *, timezone: str, date: str | None, xy_crs: str
     raw = p.read_bytes()
     name = p.name
     try:
-        df = pd.read_csv(p, dtype=str, keep_default_na=False, skipinitialspace=True, comment="#")
+        kept = [(n, ln) for n, ln in enumerate(raw.decode("utf-8-sig").splitlines(), 1)
+                if ln.strip() and not ln.lstrip().startswith("#")]  # whole-line comments and blank lines
+        if not kept:
+            raise pd.errors.EmptyDataError
+        lines = [n for n, _ in kept[1:]]
+        df = pd.read_csv(io.StringIO("\n".join(ln for _, ln in kept)), dtype=str, keep_default_na=False,
+                         skipinitialspace=True, skip_blank_lines=False)
+        if len(df) != len(lines):
+            raise ValueError("a quoted field spans lines")
     except pd.errors.EmptyDataError:
         raise InputError("the patch file is empty", where=name, fix="give a header row and one row per reading") from None
     except (pd.errors.ParserError, UnicodeDecodeError, ValueError) as exc:
-        raise InputError(f"cannot read the patch file ({type(exc).__name__})", where=name,
+        raise InputError(f"cannot read the patch file ({type(exc).__name__}: {str(exc).splitlines()[0]})", where=name,
                          fix="give a comma-separated UTF-8 file with a header row") from None
     df.columns = [str(c).strip().lower() for c in df.columns]
     dup = sorted({c for c in df.columns if list(df.columns).count(c) > 1})
@@ -179,7 +188,7 @@ def read_patch(path: str | Path, *, timezone: str, date: str | None, xy_crs: str
                          fix="see docs/calibration.md for the columns")
     if len(df) == 0:
         raise InputError("the patch file has no rows", where=name, fix="give one row per reading of each rung")
-    val = {c: _one_value(df, c, name) for c in PATCH_VALUES}
+    val = {c: _one_value(df, c, name, lines) for c in PATCH_VALUES}
 
     def req(col: str) -> tuple[str, str]:
         v, line = val[col]
@@ -238,7 +247,7 @@ def read_patch(path: str | Path, *, timezone: str, date: str | None, xy_crs: str
                          fix="give the snow's liquid water content or wetness class at spreading")
     rows = []
     for i, r in enumerate(df.to_dict("records")):
-        here = f"{name}:{i + 2}"
+        here = f"{name}:{lines[i]}"
         d = _number(str(r["dose_g_m2"]), "dose_g_m2", 1e-6, 5000, "g/m²", here)
         t = _time(str(r["read_at"]), spread.strftime("%Y-%m-%d"), timezone, here, "read_at")
         if t <= spread:
@@ -253,7 +262,7 @@ def read_patch(path: str | Path, *, timezone: str, date: str | None, xy_crs: str
         else:
             raise InputError(f"result {res!r} is neither held nor soft", where=here,
                              fix="write held or soft; a hardness value needs a method column (hand, penetrometer)")
-        rows.append({"line": i + 2, "dose_g_m2": d, "read_at": t, "held": held, "hardness": hardness,
+        rows.append({"line": lines[i], "dose_g_m2": d, "read_at": t, "held": held, "hardness": hardness,
                      "method": method, "note": str(r.get("note", "")).strip()})
     return PatchFile(name=name, sha256=hashlib.sha256(raw).hexdigest(), lon=float(lon), lat=float(lat),
                      slope_deg=terrain["slope_deg"], aspect_deg=terrain["aspect_deg"],
