@@ -140,25 +140,18 @@ def calibrate(plan_path: str | Path, patch_path: str | Path, *, dry_run: bool = 
         Plain data: ``patch``, ``energy``, ``rungs``, ``fit``, ``tau``, ``notes``, ``calibration`` (the
         table written), ``diff`` (unified diff of the plan file), ``written``.
     """
-    import dataclasses
     import difflib
     import math
 
     import numpy as np
     import pandas as pd
 
-    from courseplan.agents import get_agent
     from courseplan.errors import InputError
     from courseplan.io.agentfile import load_catalogue
-    from courseplan.io.forecast import read_forecast_csv
-    from courseplan.io.patchfile import read_patch, terrain_at
+    from courseplan.io.patchfile import read_patch
     from courseplan.io.planfile import plan_from_text, read_plan_text, with_calibration, write_plan_text
     from courseplan.physics.hold import pass_dose
     from courseplan.physics.patch import fit_refreeze_share, rung_outcomes, tau_bounds
-    from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
-    from courseplan.stages.dosing import prepare_dosing
-    from courseplan.stages.sun import DEFAULT_SITE_ALTITUDE_M
-    from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
 
     p, text = read_plan_text(plan_path)
     settings = plan_from_text(text, p)
@@ -166,54 +159,10 @@ def calibrate(plan_path: str | Path, patch_path: str | Path, *, dry_run: bool = 
     cat = load_catalogue(settings.inputs.agents)
     patch = read_patch(patch_path, timezone=pl.timezone, date=pl.date, xy_crs=settings.inputs.observations_crs,
                        catalogue=cat)
-    agent = get_agent(patch.agent, cat)
-    notes: list[str] = []
-    slope, aspect, alt = patch.slope_deg, patch.aspect_deg, patch.altitude_m
-    terrain_src = "patch file"
-    if slope is None or aspect is None or alt is None:
-        if settings.inputs.dem is not None:
-            s_d, a_d, z_d = terrain_at(settings.inputs.dem, patch.lon, patch.lat)
-            got = [n for n, v in (("slope", slope), ("aspect", aspect), ("altitude", alt)) if v is None]
-            slope, aspect, alt = (s_d if slope is None else slope, a_d if aspect is None else aspect,
-                                  z_d if alt is None else alt)
-            terrain_src = f"{', '.join(got)} from the plan's DEM at the place"
-        elif slope is None or aspect is None:
-            raise InputError("the patch gives no slope_deg/aspect_deg and the plan has no DEM", where=patch.name,
-                             fix="add slope_deg and aspect_deg columns, or set [inputs] dem")
-        else:
-            alt = DEFAULT_SITE_ALTITUDE_M
-            notes.append(f"no altitude_m and no DEM: clear sky for an assumed {alt:.0f} m")
-    # the patch's time grid: spreading → last reading (and at least τ)
-    reads = patch.readings
-    t0 = patch.spread_at
-    tau_s = ds.tau_min * 60.0
-    t_last = max(pd.Timestamp(reads["read_at"].max()), t0 + pd.Timedelta(seconds=tau_s))
-    if t_last.date() != t0.date():
-        raise InputError("the readings run past midnight", where=patch.name, fix="read the patch on the day it was spread")
-    cs = clear_sky_window(patch.lat, patch.lon, alt, t0.strftime("%Y-%m-%d"), t0.strftime("%H:%M:%S"),
-                          t_last.strftime("%H:%M:%S"), pl.timezone, step_minutes=PATCH_STEP_MIN)
-    steps = uniform_steps(cs.start, cs.end, cs.n_steps)
-    fc = settings.inputs.forecast if forecast is None else (None if str(forecast) == "constants" else Path(forecast))
-    if fc is None:
-        weather = weather_from_settings(settings, cs, steps=steps)
-    else:
-        df = read_forecast_csv(fc)
-        tt = pd.DatetimeIndex(pd.to_datetime(df["time"]))
-        tt = tt.tz_localize(pl.timezone) if tt.tz is None else tt.tz_convert(pl.timezone)
-        if tt.min() > cs.start + pd.Timedelta(hours=1) or tt.max() < cs.end - pd.Timedelta(hours=1):
-            raise InputError(f"the forecast covers {tt.min():%Y-%m-%d %H:%M}–{tt.max():%Y-%m-%d %H:%M}, not the patch "
-                             f"({cs.start:%Y-%m-%d %H:%M}–{cs.end:%H:%M})", where=Path(fc).name,
-                             fix="give --forecast FILE for the patch's day, or --forecast constants")
-        weather = weather_from_table(df, settings, cs, steps=steps, source=f"forecast file {Path(fc).name}")
-    irr = float(irradiation_on_slope_wh_m2(cs, slope, aspect))
-    zone = pd.DataFrame({"zone_id": [0], "irradiation_wh_m2": [irr], "area_m2": [1.0], "lwc_pct": [patch.lwc_pct],
-                         "wetness": [patch.wetness], "density_kg_m3": [patch.density_kg_m3], "snow_temp_c": [0.0],
-                         "grain": ["MF"], "snow_source": ["patch file"]})
-    same = agent.name == get_agent(pl.agent, cat).name
-    one = settings.replace(dosing=dataclasses.replace(ds, samples=1, purity=ds.purity if same else None))
-    ctx = prepare_dosing(zone, one, agent, weather)
-    if ctx.blocked[0]:
-        notes.append(f"the patch snow counts as {ctx.blocked[0]} in the model: a plan would not salt it")
+    e = patch_energy(settings, patch, cat, forecast)
+    agent, ctx, cs, weather, irr, notes = e["agent"], e["ctx"], e["clear_sky"], e["weather"], e["irr"], e["notes"]
+    slope, aspect, alt, terrain_src = e["slope"], e["aspect"], e["altitude"], e["terrain"]
+    reads, t0, tau_s = patch.readings, patch.spread_at, ds.tau_min * 60.0
     # readings → rungs → fit
     fitted = reads[reads["held"].notna()]
     for r in reads[reads["held"].isna()].itertuples():
@@ -281,3 +230,80 @@ def calibrate(plan_path: str | Path, patch_path: str | Path, *, dry_run: bool = 
                     "high_min": None if math.isinf(tau[1]) else tau[1] / 60.0},
             "brine_exit_temp_c": ds.brine_exit_temp_c, "notes": notes, "calibration": values,
             "diff": diff, "written": written}
+
+
+def patch_energy(settings, patch, catalogue=None, forecast: str | Path | None = None) -> dict:
+    """The test patch's net energy series and dosing context (used by :func:`calibrate`).
+
+    Returns
+    -------
+    dict
+        ``agent``, ``ctx`` (:class:`~courseplan.stages.dosing.DoseContext` of the patch as one zone, one
+        sample; ``ctx.nominal`` is the series, its origin the spreading), ``clear_sky``, ``weather``,
+        ``irr`` [Wh/m² on the slope], ``slope``, ``aspect``, ``altitude``, ``terrain`` (their source),
+        ``notes``.
+    """
+    import dataclasses
+
+    import pandas as pd
+
+    from courseplan.agents import get_agent
+    from courseplan.errors import InputError
+    from courseplan.io.forecast import read_forecast_csv
+    from courseplan.io.patchfile import terrain_at
+    from courseplan.physics.solar import clear_sky_window, irradiation_on_slope_wh_m2
+    from courseplan.stages.dosing import prepare_dosing
+    from courseplan.stages.sun import DEFAULT_SITE_ALTITUDE_M
+    from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
+
+    pl, ds, cat = settings.plan, settings.dosing, catalogue
+    agent = get_agent(patch.agent, cat)
+    notes: list[str] = []
+    slope, aspect, alt = patch.slope_deg, patch.aspect_deg, patch.altitude_m
+    terrain_src = "patch file"
+    if slope is None or aspect is None or alt is None:
+        if settings.inputs.dem is not None:
+            s_d, a_d, z_d = terrain_at(settings.inputs.dem, patch.lon, patch.lat)
+            got = [n for n, v in (("slope", slope), ("aspect", aspect), ("altitude", alt)) if v is None]
+            slope, aspect, alt = (s_d if slope is None else slope, a_d if aspect is None else aspect,
+                                  z_d if alt is None else alt)
+            terrain_src = f"{', '.join(got)} from the plan's DEM at the place"
+        elif slope is None or aspect is None:
+            raise InputError("the patch gives no slope_deg/aspect_deg and the plan has no DEM", where=patch.name,
+                             fix="add slope_deg and aspect_deg columns, or set [inputs] dem")
+        else:
+            alt = DEFAULT_SITE_ALTITUDE_M
+            notes.append(f"no altitude_m and no DEM: clear sky for an assumed {alt:.0f} m")
+    # the patch's time grid: spreading → last reading (and at least τ)
+    reads = patch.readings
+    t0 = patch.spread_at
+    tau_s = ds.tau_min * 60.0
+    t_last = max(pd.Timestamp(reads["read_at"].max()), t0 + pd.Timedelta(seconds=tau_s))
+    if t_last.date() != t0.date():
+        raise InputError("the readings run past midnight", where=patch.name, fix="read the patch on the day it was spread")
+    cs = clear_sky_window(patch.lat, patch.lon, alt, t0.strftime("%Y-%m-%d"), t0.strftime("%H:%M:%S"),
+                          t_last.strftime("%H:%M:%S"), pl.timezone, step_minutes=PATCH_STEP_MIN)
+    steps = uniform_steps(cs.start, cs.end, cs.n_steps)
+    fc = settings.inputs.forecast if forecast is None else (None if str(forecast) == "constants" else Path(forecast))
+    if fc is None:
+        weather = weather_from_settings(settings, cs, steps=steps)
+    else:
+        df = read_forecast_csv(fc)
+        tt = pd.DatetimeIndex(pd.to_datetime(df["time"]))
+        tt = tt.tz_localize(pl.timezone) if tt.tz is None else tt.tz_convert(pl.timezone)
+        if tt.min() > cs.start + pd.Timedelta(hours=1) or tt.max() < cs.end - pd.Timedelta(hours=1):
+            raise InputError(f"the forecast covers {tt.min():%Y-%m-%d %H:%M}–{tt.max():%Y-%m-%d %H:%M}, not the patch "
+                             f"({cs.start:%Y-%m-%d %H:%M}–{cs.end:%H:%M})", where=Path(fc).name,
+                             fix="give --forecast FILE for the patch's day, or --forecast constants")
+        weather = weather_from_table(df, settings, cs, steps=steps, source=f"forecast file {Path(fc).name}")
+    irr = float(irradiation_on_slope_wh_m2(cs, slope, aspect))
+    zone = pd.DataFrame({"zone_id": [0], "irradiation_wh_m2": [irr], "area_m2": [1.0], "lwc_pct": [patch.lwc_pct],
+                         "wetness": [patch.wetness], "density_kg_m3": [patch.density_kg_m3], "snow_temp_c": [0.0],
+                         "grain": ["MF"], "snow_source": ["patch file"]})
+    same = agent.name == get_agent(pl.agent, cat).name
+    one = settings.replace(dosing=dataclasses.replace(ds, samples=1, purity=ds.purity if same else None))
+    ctx = prepare_dosing(zone, one, agent, weather)
+    if ctx.blocked[0]:
+        notes.append(f"the patch snow counts as {ctx.blocked[0]} in the model: a plan would not salt it")
+    return dict(agent=agent, ctx=ctx, clear_sky=cs, weather=weather, irr=irr, slope=slope, aspect=aspect,
+                altitude=alt, terrain=terrain_src, notes=notes)

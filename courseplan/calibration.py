@@ -43,10 +43,8 @@ def calibrated_refreeze_share(settings: PlanSettings) -> tuple[float, str]:
     ds, c = settings.dosing, settings.calibration
     if not is_calibrated(settings):
         return float(ds.refreeze_share), "setting"
-    lo = 0.0 if c.refreeze_share_low is None else float(c.refreeze_share_low)
-    hi = 1.0 if c.refreeze_share_high is None else float(c.refreeze_share_high)
     if c.refreeze_share_kind == "interval":
-        return float(c.refreeze_share), f"test patch of {c.date} (interval {lo:.2f}–{hi:.2f})"
+        return float(c.refreeze_share), f"test patch of {c.date}"
     if c.refreeze_share_kind == "upper bound":
         v = min(float(ds.refreeze_share), float(c.refreeze_share))
         return v, f"setting capped by the test patch of {c.date} (k_f ≤ {float(c.refreeze_share):.2f})"

@@ -287,7 +287,7 @@ def terrain_at(dem_path: str | Path, lon: float, lat: float) -> tuple[float, flo
     b = (lon, lat, lon, lat)
     dem = read_dem(dem_path, bounds=b, bounds_crs="EPSG:4326", margin_m=60.0)
     x, y = Transformer.from_crs("EPSG:4326", dem.crs, always_xy=True).transform(lon, lat)
-    col, row = ~dem.transform * (x, y)
+    col, row = ~dem.transform @ (x, y)
     r, c = int(math.floor(row)), int(math.floor(col))
     z = np.asarray(dem.values, dtype=float)
     if not (1 <= r < z.shape[0] - 1 and 1 <= c < z.shape[1] - 1) or not np.all(np.isfinite(z[r - 1:r + 2, c - 1:c + 2])):
