@@ -1,12 +1,10 @@
 """Plan settings: frozen dataclasses, one per plan-file table, loaded and validated from TOML.
 
-A plan file is TOML with the tables ``[plan]``, ``[inputs]``, ``[window]``, ``[zoning]``,
-``[snow]``, ``[dosing]``, ``[forecast]`` and ``[logistics]``.  Every key has a documented
-default (see ``docs/plan-file.md``), so a plan file may be empty.  Unknown keys, wrong types and
-out-of-range values raise :class:`~courseplan.errors.SettingsError` naming the key, with the
-nearest valid key suggested.  Paths in ``[inputs]`` are relative to the plan file's folder.
-
-This module opens no files: :mod:`courseplan.io.planfile` reads the TOML text.
+A plan file is TOML with the tables ``[plan]``, ``[inputs]``, ``[window]``, ``[race]``, ``[zoning]``,
+``[snow]``, ``[dosing]``, ``[forecast]``, ``[logistics]`` and ``[calibration]``.  Every key has a documented
+default (``docs/plan-file.md``), so a plan file may be empty.  Unknown keys, wrong types and out-of-range
+values raise :class:`~courseplan.errors.SettingsError` naming the key, with the nearest valid key
+suggested.  Paths in ``[inputs]`` are relative to the plan file's folder.  This module opens no files.
 """
 
 from __future__ import annotations
@@ -179,8 +177,32 @@ class Dosing:
     purity: float | None = _f(None, "product purity, overriding the catalogue", lo=0.05, hi=1.0)
     samples: int = _f(200, "samples for P50/P90", lo=1, hi=100000)
     seed: int = _f(20261202, "random seed of the sampling (same seed, same numbers)", lo=0)
-    calibrated: str | None = _f(None, "date and place of the test patch that brine_exit_temp_c or "
-                                      "refreeze_share was fitted on (docs/model.md, calibration)")
+    calibrated: str | None = _f(None, "free-text note on where the knobs came from; informs, silences "
+                                      "nothing (the fit itself is the [calibration] table)")
+
+
+FIT_KINDS = ("interval", "upper bound", "lower bound")
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """``[calibration]``: the last test-patch fit, written by ``courseplan calibrate``."""
+
+    refreeze_share: float | None = _f(None, "k_f fitted on a patch: the middle or the bound", lo=0, hi=1)
+    refreeze_share_kind: str | None = _f(None, "what the ladder gave", choices=FIT_KINDS)
+    refreeze_share_low: float | None = _f(None, "low end of the fitted k_f range (0: open)", lo=0, hi=1)
+    refreeze_share_high: float | None = _f(None, "high end of the fitted k_f range (1: open)", lo=0, hi=1)
+    tau_min_low: float | None = _f(None, "τ bounded from below by the reading times", unit="min", lo=0.0)
+    tau_min_high: float | None = _f(None, "τ bounded from above by the reading times", unit="min", lo=0.0)
+    tau_min: float | None = _f(None, "τ kept in the fit ([dosing] tau_min then)", unit="min", lo=0.0)
+    brine_exit_temp_c: float | None = _f(None, "T_b kept in the fit", unit="°C", lo=-30.0, hi=0.0)
+    date: str | None = _f(None, "day the patch was spread, YYYY-MM-DD")
+    lon: float | None = _f(None, "patch longitude (WGS 84)", unit="°", lo=-180.0, hi=360.0)
+    lat: float | None = _f(None, "patch latitude (WGS 84)", unit="°", lo=-90.0, hi=90.0)
+    agent: str | None = _f(None, "agent spread on the patch")
+    wetness: str | None = _f(None, "wetness class of the patch snow at spreading (Fierz et al. 2009)")
+    patch_file: str | None = _f(None, "name of the patch file fitted")
+    patch_sha256: str | None = _f(None, "SHA-256 of the patch file fitted")
 
 
 @dataclass(frozen=True)
@@ -245,6 +267,7 @@ class PlanSettings:
     dosing: Dosing = field(default_factory=Dosing)
     forecast: Forecast = field(default_factory=Forecast)
     logistics: Logistics = field(default_factory=Logistics)
+    calibration: Calibration = field(default_factory=Calibration)
 
     def replace(self, **sections: Any) -> PlanSettings:
         """Return a copy with whole sections replaced."""
@@ -344,20 +367,10 @@ def _check_range(value: float, where: str, meta: dict[str, Any]) -> float:
 
 def section_from_mapping(cls: type, data: dict[str, Any], where: str, base: Path | None = None,
                          start: Any = None):
-    """Build a settings section from a mapping, validating keys, types and ranges.
+    """Build section *cls* from a mapping (plan file or overrides), validating keys, types and ranges.
 
-    Parameters
-    ----------
-    cls
-        The section dataclass.
-    data
-        Keys and values from the plan file (or from command-line overrides).
-    where
-        Name used in messages, e.g. ``"plan.toml [dosing]"``.
-    base
-        Folder that relative paths are resolved against.
-    start
-        An existing instance to update; default the section's defaults.
+    *where* names it in messages (``"plan.toml [dosing]"``), *base* is the folder relative paths resolve
+    against, *start* an instance to update (default: the section's defaults).
     """
     if not isinstance(data, dict):
         raise SettingsError(f"expected a table, got {data!r}", where=where)
@@ -403,7 +416,7 @@ def _check_section(obj: Any, where: str) -> None:
     if isinstance(obj, Dosing) and obj.lwc_min_pct >= obj.lwc_max_pct:
         raise SettingsError(f"lwc_min_pct ({obj.lwc_min_pct}) must be below lwc_max_pct "
                             f"({obj.lwc_max_pct})", where=where)
-    if isinstance(obj, PlanInfo) and obj.date is not None:
+    if isinstance(obj, PlanInfo | Calibration) and obj.date is not None:
         import datetime as _dt
         try:
             _dt.date.fromisoformat(obj.date)
@@ -414,21 +427,10 @@ def _check_section(obj: Any, where: str) -> None:
 
 def settings_from_mapping(data: dict[str, Any], source: str = "plan file", base: Path | None = None,
                           start: PlanSettings | None = None) -> PlanSettings:
-    """Validate a whole plan mapping (as parsed from TOML) into :class:`PlanSettings`.
+    """Validate a whole plan mapping (tables keyed by section name, as parsed from TOML).
 
-    Every bad table, key and value is collected: one raises its own :class:`SettingsError`,
-    several raise :class:`~courseplan.errors.SettingsProblems` listing each with its key and hint.
-
-    Parameters
-    ----------
-    data
-        Tables keyed by section name.
-    source
-        Name of the plan file for messages.
-    base
-        Folder that relative paths resolve against (the plan file's folder).
-    start
-        Settings to update (default: all defaults).
+    *source* names the plan file in messages, *base* is its folder (relative paths resolve against it),
+    *start* the settings to update (default: all defaults).
     """
     current = start or PlanSettings()
     sections: dict[str, Any] = {}

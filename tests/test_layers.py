@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 
 PKG = Path(__file__).resolve().parents[1] / "courseplan"
-CORE = {"errors", "constants", "grid", "columns", "settings", "schedule", "cautions", "agents"}
+CORE = {"errors", "constants", "grid", "columns", "settings", "schedule", "cautions", "agents", "calibration"}
 ALLOWED: dict[str, set[str]] = {
     # core records: only each other (the graph check below rules out cycles)
     **{c: CORE for c in CORE},

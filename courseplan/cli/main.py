@@ -1,4 +1,4 @@
-"""Command line: ``courseplan plan | check | sun | agents``.
+"""Command line: ``courseplan plan | check | sun | agents | calibrate``.
 
 A thin layer: parse, build settings, call one library function (:mod:`courseplan.api`), print.
 Every command shares one error path (:mod:`courseplan.cli.common`): ``error: …`` on one line, exit
@@ -13,6 +13,7 @@ import sys
 import click
 
 from courseplan.cli.agents import agents_command
+from courseplan.cli.calibrate import calibrate_command
 from courseplan.cli.common import (
     EXIT_INTERRUPTED,
     INTERRUPTED_LINE,
@@ -35,7 +36,7 @@ def main() -> None:
     """
 
 
-for _cmd in (plan_command, check_command, sun_command, agents_command):
+for _cmd in (plan_command, check_command, sun_command, agents_command, calibrate_command):
     main.add_command(_cmd)
 
 

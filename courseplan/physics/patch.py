@@ -15,6 +15,12 @@ A ladder with both outcomes gives an interval (its middle is reported as the val
 gives an upper bound, soft-only a lower bound (design note *dosing-model*, "Parameters a test patch
 fixes").  E_k is the patch's own sun while the salt acted, from its energy series: the user never
 types MJ/m².  The other knobs (τ, T_b) stay as set.
+
+Readings at known times (:func:`rung_outcomes`, :func:`tau_bounds`): a rung is *held* when any of its
+readings held (a later soft reading is the sun taking the hold back); it is *soft* when it was read
+soft at or after spread + τ and never held; a rung read soft only before spread + τ says nothing (the
+salt had not finished acting).  The times bound τ: a held reading r after spreading gives τ ≤ r, a
+soft reading of a rung that held later gives τ > that reading.
 """
 
 from __future__ import annotations
@@ -29,7 +35,7 @@ from courseplan.errors import InputError
 from courseplan.physics import brine
 from courseplan.physics.hold import TAU_S, EnergySeries, pass_dose
 
-__all__ = ["PatchFit", "fit_refreeze_share", "patch_outcomes"]
+__all__ = ["LadderReadings", "PatchFit", "fit_refreeze_share", "patch_outcomes", "rung_outcomes", "tau_bounds"]
 
 
 @dataclass(frozen=True)
@@ -138,3 +144,81 @@ def fit_refreeze_share(agent, series: EnergySeries, t_s: float, lwc_pct: float, 
     else:
         res = tuple(float("nan") for _ in doses)
     return PatchFit(low=low, high=high, value=value, kind=kind, residuals=res)
+
+
+@dataclass(frozen=True)
+class LadderReadings:
+    """Result of :func:`rung_outcomes`: one outcome per rung that says something.
+
+    Attributes
+    ----------
+    doses_g_m2, held, read_s
+        The decided rungs' doses [g/m²], outcomes, and the reading each outcome rests on [s after
+        spreading]: the first held reading, or the first soft one at or after τ.
+    undecided_g_m2
+        Doses of the rungs read soft only before spread + τ (they say nothing about k_f).
+    """
+
+    doses_g_m2: np.ndarray
+    held: np.ndarray
+    read_s: np.ndarray
+    undecided_g_m2: tuple[float, ...]
+
+
+def _readings(doses_g_m2, read_s, held):
+    d = np.asarray(doses_g_m2, dtype=float).ravel()
+    r = np.asarray(read_s, dtype=float).ravel()
+    h = np.asarray(held, dtype=bool).ravel()
+    if not (d.shape == r.shape == h.shape):
+        raise InputError("doses, reading times and outcomes differ in number", where="test patch")
+    if np.any(~np.isfinite(r)) or np.any(r < 0):
+        raise InputError("a reading is before spreading (or has no time)", where="test patch",
+                         fix="read each rung after the ladder was spread")
+    return d, r, h
+
+
+def rung_outcomes(doses_g_m2, read_s, held, tau_s: float = TAU_S) -> LadderReadings:
+    """Reduce timed readings (one entry per reading) to one outcome per rung (module docstring).
+
+    Parameters
+    ----------
+    doses_g_m2
+        Dose of the rung each reading is of [g/m²]; equal doses are one rung.
+    read_s
+        Time of each reading after spreading [s] (≥ 0).
+    held
+        Whether the rung held at that reading.
+    tau_s
+        Time the salt acts, τ [s].
+    """
+    d, r, h = _readings(doses_g_m2, read_s, held)
+    out_d, out_h, out_r, none = [], [], [], []
+    for dose in np.unique(d):
+        sel = d == dose
+        rh, rs = r[sel & h], r[sel & ~h]
+        if rh.size:
+            out_d.append(dose), out_h.append(True), out_r.append(float(rh.min()))
+        elif np.any(rs >= tau_s - 1e-6):
+            out_d.append(dose), out_h.append(False), out_r.append(float(rs[rs >= tau_s - 1e-6].min()))
+        else:
+            none.append(float(dose))
+    return LadderReadings(doses_g_m2=np.asarray(out_d, dtype=float), held=np.asarray(out_h, dtype=bool),
+                          read_s=np.asarray(out_r, dtype=float), undecided_g_m2=tuple(none))
+
+
+def tau_bounds(doses_g_m2, read_s, held) -> tuple[float, float]:
+    """Bounds on τ from the reading times [s]: (low, high), 0 / +inf where open (module docstring).
+
+    ``low > high`` means the rungs disagree (one held before another had hardened): τ then depends on
+    the dose, which the model does not have.
+    """
+    d, r, h = _readings(doses_g_m2, read_s, held)
+    high = float(r[h].min()) if h.any() else float("inf")
+    low = 0.0
+    for dose in np.unique(d[h]):
+        sel = d == dose
+        first_held = r[sel & h].min()
+        early = r[sel & ~h & (r < first_held)]
+        if early.size:
+            low = max(low, float(early.max()))
+    return low, high
