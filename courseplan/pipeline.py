@@ -141,6 +141,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     import geopandas as gpd
 
     from courseplan.agents import get_agent
+    from courseplan.calibration import calibration_notes
     from courseplan.schedule import plan_schedule
     from courseplan.stages.conditions import assign_snow, observation_exposure
     from courseplan.stages.crews import crew_bag_kg
@@ -187,6 +188,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     obs, obs_exp = observation_exposure(inputs.observations, zres.exposure_grid, settings.zoning.exposure_labels)
     zones = _staged("conditions", zones, lambda z: assign_snow(z, obs, settings, window_start=ps.window_start,
                                                               obs_exposure=obs_exp))
+    notes = calibration_notes(settings, zones["wetness"]) + notes
     bag_kg = crew_bag_kg(settings, agent)
     zones = _staged("crews", zones, lambda z: assign_crews(z, settings, bag_kg))
 

@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from courseplan.agents import Agent
+from courseplan.calibration import calibrated_refreeze_share
 from courseplan.errors import InputError
 from courseplan.physics import energy
 from courseplan.physics.dose import NEW_SNOW_GRAINS, latin_hypercube, sample_lwc_pct
@@ -78,6 +79,7 @@ class DoseContext:
     d_t: np.ndarray
     sampled_lwc: np.ndarray
     weather_source: str = ""
+    k_f_source: str = "setting"
 
     def seconds(self, ts) -> np.ndarray:
         """Seconds from the series origin of tz-aware times (NaT → NaN)."""
@@ -175,13 +177,15 @@ def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather
     new = (rho < ds.min_density_kg_m3) | np.isin(grain, NEW_SNOW_GRAINS)
     blocked = np.select([new, lwc > ds.lwc_max_pct, (ts < 0) & (lwc < ds.lwc_min_pct)],
                         ["new-snow", "slush", "too-cold"], default="").astype(object)
-    kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=ds.refreeze_share,
+    k_f, k_f_source = calibrated_refreeze_share(settings)
+    kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=k_f,
               brine_exit_temp_c=ds.brine_exit_temp_c, mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit,
               purity=purity, lwc_min_pct=ds.lwc_min_pct)
     return DoseContext(zones=zones, agent=agent, settings=settings, purity=purity,
                        t0=pd.Timestamp(weather.hour_start[0]), dt_s=dt_s, nominal=nominal,
                        sampled=sampled_series, lwc=lwc, lwc_s=lwc_s, rho=rho, blocked=blocked, kw=kw,
-                       albedo_s=alb, d_t=d_t, sampled_lwc=sampled, weather_source=weather.source)
+                       albedo_s=alb, d_t=d_t, sampled_lwc=sampled, weather_source=weather.source,
+                       k_f_source=k_f_source)
 
 
 def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
@@ -323,7 +327,7 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
     z["nitrogen_kg"] = z["product_kg"].to_numpy() * purity * ag.nitrogen_fraction
     z["chloride_kg"] = z["product_kg"].to_numpy() * purity * ag.chloride_fraction
     z["brine_exit_temp_c"] = float(ds.brine_exit_temp_c)
-    z["refreeze_share"] = float(ds.refreeze_share)
+    z["refreeze_share"] = float(ctx.kw["refreeze_share"])
     z["lwc_sampled"] = ctx.sampled_lwc
     z["weather_source"] = ctx.weather_source
     z["dose_inputs"] = _provenance(ctx, z)
@@ -335,7 +339,6 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
 
 def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
     ds = ctx.settings.dosing
-    cal = f" (fitted on {ds.calibrated})" if ds.calibrated else " (setting)"
     out = []
     for i in range(len(z)):
         w = str(z["wetness"].iat[i])
@@ -347,8 +350,8 @@ def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
             lw = f"θ {ctx.lwc[i]:.1f} % ({src})"
         out.append(f"{lw}; ρ {ctx.rho[i]:.0f} kg/m³; sun {float(z['irradiation_wh_m2'].iat[i]):.0f} Wh/m² over "
                    f"the day; albedo {ds.albedo:.2f} ± {ds.albedo_spread:.2f} (setting); τ {ds.tau_min:.0f} min "
-                   f"(setting, field 15–30 min); T_b {ds.brine_exit_temp_c:.1f} °C{cal}, k_f "
-                   f"{ds.refreeze_share:.2f}{cal}, depth {ds.depth_m:.3f} m; agent {ctx.agent.name} purity "
+                   f"(setting, field 15–30 min); T_b {ds.brine_exit_temp_c:.1f} °C (setting), k_f "
+                   f"{ctx.kw['refreeze_share']:.2f} ({ctx.k_f_source}), depth {ds.depth_m:.3f} m; agent {ctx.agent.name} purity "
                    f"{ctx.purity:.2f}; {int(ds.samples)} samples, seed {ds.seed}")
     return out
 
