@@ -91,7 +91,7 @@ def calibration_notes(settings: PlanSettings, wetness: Iterable[str] | None = No
     """
     c, ds = settings.calibration, settings.dosing
     if not is_calibrated(settings):
-        return [f"not calibrated: k_f {ds.refreeze_share:.2f}, τ {ds.tau_min:.0f} min and T_b "
+        return [f"not calibrated: k_f {ds.refreeze_share:.2f} with τ {ds.tau_min:.0f} min and T_b "
                 f"{ds.brine_exit_temp_c:.1f} °C are settings; treat a test patch and run courseplan calibrate "
                 "(docs/calibration.md)"]
     kf, src = calibrated_refreeze_share(settings)
