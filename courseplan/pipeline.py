@@ -374,6 +374,9 @@ def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start
     from courseplan.stages.logistics import LogisticsResult, plan_order
 
     cp = plan_crews(zones, settings, agent, pass_table=passes, race_start=race_start, plan_p90_kg=plan_p90_kg)
-    order = plan_order(cp.zones, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg)
+    order = plan_order(cp.zones, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg, depots=cp.depots)
+    from courseplan.stages.crews.raceday import METHODS
+
     return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
-                           wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes)
+                           wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes, work=cp.work,
+                           depots=cp.depots, method=METHODS[settings.logistics.method].label)

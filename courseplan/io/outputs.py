@@ -55,7 +55,24 @@ def _plain(v: Any) -> Any:
     return v
 
 
-def summary_dict(result) -> dict[str, Any]:
+def plan_version(result) -> str:
+    """A short fingerprint of what a plan asks the crews to do (12 hex digits of a SHA-256).
+
+    Two runs that spread the same product on the same zones at the same times get the same version;
+    any change of a dose, a zone or a time gives a new one.
+    """
+    import hashlib
+
+    s = result.settings.plan
+    parts = [s.name, str(s.date), result.agent.name]
+    parts += [f"{int(z)}:{kg:.1f}" for z, kg in zip(result.zones["zone_id"], result.zones["product_kg"], strict=True)]
+    if getattr(result, "passes", None) is not None:
+        parts += [f"{int(r.zone_id)}/{int(r.pass_no)}@{pd.Timestamp(r.spread_at).isoformat()}"
+                  for r in result.passes.itertuples(index=False)]
+    return hashlib.sha256("|".join(parts).encode("utf-8")).hexdigest()[:12]
+
+
+def summary_dict(result, issued_at: str | None = None) -> dict[str, Any]:
     """The JSON summary: totals, order, crews, per-zone figures, settings, notes and cautions.
 
     Its fields are fixed by ``courseplan/schema/summary.schema.json`` (``schema_version``); a new
@@ -70,6 +87,8 @@ def summary_dict(result) -> dict[str, Any]:
     out = {
         "schema_version": SCHEMA_VERSION,
         "courseplan_version": __version__,
+        "plan_version": plan_version(result),
+        "issued_at": issued_at or pd.Timestamp.now(tz=result.settings.plan.timezone).isoformat(timespec="seconds"),
         "plan": result.settings.plan.name,
         "date": result.settings.plan.date,
         "window": {"start": result.settings.window.start, "end": result.settings.window.end,
@@ -142,6 +161,9 @@ def write_gpkg(path: Path, result) -> None:
         obs = result.observations.copy()
         obs["time"] = [("" if pd.isna(v) else pd.Timestamp(v).isoformat()) for v in obs["time"]]
         _gpkg_ready(obs).to_file(path, layer="observations", driver="GPKG", engine="pyogrio")
+    depots = getattr(result.logistics, "depots", None)
+    if depots is not None and len(depots):
+        _gpkg_ready(depots).to_file(path, layer="depots", driver="GPKG", engine="pyogrio")
     crews = result.logistics.crews
     if crews is not None and len(crews):
         _gpkg_ready(crews).to_file(path, layer="crews", driver="GPKG", engine="pyogrio")
@@ -227,7 +249,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         summary = summary_dict(result)
         write_text_atomic(tmp / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
         kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
-                  cautions=_leading(result))
+                  cautions=_leading(result), issue=f"plan {summary['plan_version']}, issued {summary['issued_at'][:16]}")
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "

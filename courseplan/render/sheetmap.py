@@ -19,6 +19,10 @@ from __future__ import annotations
 
 from typing import Any
 
+from courseplan.render.fonts import register as _register_fonts  # noqa: E402
+
+FONT, FONT_BOLD, FONT_ITALIC = _register_fonts()
+
 
 def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float], width: float,
                 height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None
@@ -80,7 +84,7 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
         g.add(Polygon([px - 5, py - 4, px + 5, py - 4, px, py + 5], fillColor=colors.black,
                       strokeColor=colors.white, strokeWidth=0.6))
         g.add(Rect(px + 6, py - 4, 30, 9, fillColor=colors.white, strokeColor=None))
-        g.add(String(px + 7, py - 2, "Depot", fontName="Helvetica-Bold", fontSize=7.5))
+        g.add(String(px + 7, py - 2, "Depot", fontName=FONT_BOLD, fontSize=7.5))
         _add_scale_bar(g, scale, pad)
     elif view_of is not None:
         from reportlab.graphics.shapes import Rect as R
@@ -89,12 +93,12 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
               fillColor=None, strokeColor=colors.black, strokeWidth=0.8, strokeDashArray=[2, 2])
         g.add(r)
         g.add(Rect(2, 2, 50, 10, fillColor=colors.white, strokeColor=None))
-        g.add(String(4, 4.5, "Whole course", fontName="Helvetica", fontSize=7))
+        g.add(String(4, 4.5, "Whole course", fontName=FONT, fontSize=7))
     # north arrow (grid north of the plan's CRS)
     nx, ny = width - pad - 8, height - pad - 18
     from reportlab.graphics.shapes import Polygon
     g.add(Polygon([nx - 4, ny, nx + 4, ny, nx, ny + 12], fillColor=colors.black, strokeColor=None))
-    g.add(String(nx, ny - 8, "N", fontName="Helvetica-Bold", fontSize=7, textAnchor="middle"))
+    g.add(String(nx, ny - 8, "N", fontName=FONT_BOLD, fontSize=7, textAnchor="middle"))
     d.add(g)
     return d, (vx0, vy0, vx1, vy1)
 
@@ -141,7 +145,7 @@ def _add_label(g: Any, geom: Any, label: str, taken: list[Any], frame: Any) -> N
     if leader:
         g.add(Line(anchor.x, anchor.y, x, y, strokeColor=colors.black, strokeWidth=0.6))
     g.add(Rect(x - w / 2, y - h / 2, w, h, fillColor=colors.white, strokeColor=colors.black, strokeWidth=0.5))
-    g.add(String(x, y - 2.9, label, fontName="Helvetica-Bold", fontSize=8, textAnchor="middle"))
+    g.add(String(x, y - 2.9, label, fontName=FONT_BOLD, fontSize=8, textAnchor="middle"))
 
 
 def _rings(geom: Any) -> list[Any]:
@@ -205,4 +209,4 @@ def _add_scale_bar(g: Any, scale: float, pad: float) -> None:
     g.add(Rect(x - 2, y - 2, w + 4, 16, fillColor=colors.white, strokeColor=None))
     g.add(Rect(x, y, w / 2, 3, fillColor=colors.black, strokeColor=colors.black, strokeWidth=0.5))
     g.add(Rect(x + w / 2, y, w / 2, 3, fillColor=colors.white, strokeColor=colors.black, strokeWidth=0.5))
-    g.add(String(x, y + 5, f"{length_m:g} m", fontName="Helvetica", fontSize=7))
+    g.add(String(x, y + 5, f"{length_m:g} m", fontName=FONT, fontSize=7))

@@ -13,9 +13,12 @@ from __future__ import annotations
 from typing import Any
 from xml.sax.saxutils import escape
 
+from courseplan.render.fonts import register as _register_fonts
 from courseplan.render.sheetmap import map_drawing
 
 PAGE_MARGIN_PT = 36.0  # 12.7 mm, inside the printable area of common office printers
+
+FONT, FONT_BOLD, FONT_ITALIC = _register_fonts()
 
 
 def num(value: float | int | None, nd: int = 1) -> str:
@@ -29,7 +32,7 @@ def num(value: float | int | None, nd: int = 1) -> str:
 
 
 def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
-              agent_label: str, cautions: list[str] | tuple[str, ...]) -> bytes:
+              agent_label: str, cautions: list[str] | tuple[str, ...], issue: str = "") -> bytes:
     """Build the order sheet for the logistics lead (PDF bytes).
 
     Parameters
@@ -103,11 +106,12 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
     story.append(_grid_table(head, body, st, total=None,
                              widths=[18, 38, 22, 22, 12, 20, 14, 16]))
     story += _notes_and_cautions(cr["notes"], cautions, st)
-    return _build(story, plan_name, plan_date, "Order sheet")
+    return _build(story, plan_name, plan_date, "Order sheet", issue)
 
 
 def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
-              plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...]) -> bytes:
+              plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...],
+              issue: str = "") -> bytes:
     """Build the crew sheets, one page per crew (PDF bytes).
 
     Each page: a map of the crew's zones on the course outline (with zone numbers and the depot), an
@@ -146,6 +150,13 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
         story.append(Paragraph("No zone needs treatment: no crews.", st["body"]))
         story += _notes_and_cautions(cr["notes"], cautions, st)
     for n, c in enumerate(cr["crews"]):
+        if c.get("work"):
+            story.append(KeepInFrame(frame_w, frame_h, _race_day_page(
+                c, cr, course_geom, treated_geoms, plan_name=plan_name, plan_date=plan_date,
+                agent_label=agent_label, cautions=cautions, issue=issue, st=st), mode="shrink"))
+            if n < len(cr["crews"]) - 1:
+                story.append(PageBreak())
+            continue
         mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
         depot = (c["depot_x"], c["depot_y"])
         map_w = frame_w * 0.64
@@ -197,7 +208,48 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
         story.append(KeepInFrame(frame_w, frame_h, page, mode="shrink"))
         if n < len(cr["crews"]) - 1:
             story.append(PageBreak())
-    return _build(story, plan_name, plan_date, "Crew sheets")
+    return _build(story, plan_name, plan_date, "Crew sheets", issue)
+
+
+def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, plan_name: str,
+                   plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict) -> list[Any]:
+    """One crew's page: crew, depot, map, then the work in order (zone, pass, window, dose, bags, rate)."""
+    from reportlab.lib.units import mm
+    from reportlab.platypus import Paragraph, Spacer
+
+    frame_w, _ = _frame_size()
+    d = c.get("depot") or {}
+    mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
+    depot = (c["depot_x"], c["depot_y"])
+    map_h = max(50.0, 85.0 - 2.5 * max(len(c["work"]) - 10, 0)) * mm
+    detail, _ = map_drawing(course_geom, treated_geoms, mine, depot, frame_w, map_h, detail=True)
+    hand = any(w["handfuls_m2"] is not None for w in c["work"])
+    head = ["Zone", "Pass", "Spread from – to", "Dose g/m²", "Bags",
+            "Handfuls per m²" if hand else "Spreader kg/min"]
+    body = [[f"<b>{escape(str(w['label']))}</b>", str(w["pass_no"]), f"{w['from']} – {w['to']}",
+             f"<b>{num(w['dose_g_m2'], 0)}</b>", str(w["bags"]),
+             num(w["handfuls_m2"] if hand else w["flow_kg_min"], 1)] for w in c["work"]]
+    total = ["Total", "", "", "", str(sum(w["bags"] for w in c["work"])), ""]
+    rate = (f"one handful is about {num(cr['handful_g'], 0)} g" if hand else
+            "set the spreader to the flow shown at a steady walking pace")
+    page = [
+        Paragraph(f"{escape(c['label'])} – {escape(plan_name)}", st["title"]),
+        Paragraph(f"{escape(agent_label)} · race day {escape(plan_date or 'not set')} · "
+                  f"{escape(cr.get('method') or '')}" + (f" · {escape(issue)}" if issue else ""), st["sub"]),
+        Spacer(1, 1.5 * mm),
+        Paragraph(f"<b>Depot:</b> {escape(str(d.get('name', '')))} at {d.get('lat', 0):.5f} N, "
+                  f"{d.get('lon', 0):.5f} E — {d.get('bags', c['bags'])} bags of {num(c['bag_kg'], 0)} kg "
+                  f"({num(d.get('kg', 0), 0)} kg) waiting there from {escape(str(d.get('deliver_by', '')))}",
+                  st["body"]),
+        Spacer(1, 1.5 * mm), detail, Spacer(1, 1.5 * mm),
+        _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
+        Spacer(1, 1.5 * mm),
+        Paragraph(f"Work down the table. Spread the dose shown evenly over the whole width, turn apexes "
+                  f"included, no clumps; {rate}. Be off the course by the end of each window: inspection at "
+                  f"the first pass's end, the next run at the break's end.", st["body"]),
+    ]
+    page += _notes_and_cautions(c["notes"], cautions, st)
+    return page
 
 
 # ---------------------------------------------------------------- pieces
@@ -206,11 +258,11 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
 def _styles() -> dict[str, Any]:
     from reportlab.lib.styles import ParagraphStyle
 
-    base = ParagraphStyle("body", fontName="Helvetica", fontSize=9, leading=11.5)
+    base = ParagraphStyle("body", fontName=FONT, fontSize=9, leading=11.5)
     return {
-        "title": ParagraphStyle("title", parent=base, fontName="Helvetica-Bold", fontSize=15, leading=18),
+        "title": ParagraphStyle("title", parent=base, fontName=FONT_BOLD, fontSize=15, leading=18),
         "sub": ParagraphStyle("sub", parent=base, fontSize=9.5, leading=12),
-        "h2": ParagraphStyle("h2", parent=base, fontName="Helvetica-Bold", fontSize=11, leading=14,
+        "h2": ParagraphStyle("h2", parent=base, fontName=FONT_BOLD, fontSize=11, leading=14,
                              spaceBefore=2, spaceAfter=2),
         "body": base,
         "small": ParagraphStyle("small", parent=base, fontSize=8, leading=10),
@@ -258,7 +310,7 @@ def _grid_table(head: list[str], body: list[list[Any]], st: dict[str, Any], *, t
 
     frame_w = _frame_size()[0]
     scale = frame_w / sum(widths)
-    hstyle = st["cell"].clone("head", fontName="Helvetica-Bold")
+    hstyle = st["cell"].clone("head", fontName=FONT_BOLD)
     data: list[list[Any]] = [[Paragraph(escape(h), hstyle) for h in head]]
     data += [[Paragraph(c, st["cell"]) if isinstance(c, str) else c for c in row] for row in body]
     if total is not None:
@@ -292,7 +344,7 @@ def _notes_and_cautions(notes: list[str], cautions: list[str] | tuple[str, ...],
     return out
 
 
-def _build(story: list[Any], plan_name: str, plan_date: str | None, kind: str) -> bytes:
+def _build(story: list[Any], plan_name: str, plan_date: str | None, kind: str, issue: str = "") -> bytes:
     """Lay out *story* on A4 pages with the footer; return the PDF bytes."""
     import io
 
@@ -301,8 +353,8 @@ def _build(story: list[Any], plan_name: str, plan_date: str | None, kind: str) -
 
     def footer(canvas: Any, doc: Any) -> None:
         canvas.saveState()
-        canvas.setFont("Helvetica", 7.5)
-        text = f"{plan_name} · {plan_date or 'date not set'} · {kind} · page {doc.page}"
+        canvas.setFont(FONT, 7.5)
+        text = f"{plan_name} · {plan_date or 'date not set'} · {kind}{' · ' + issue if issue else ''} · page {doc.page}"
         canvas.drawString(PAGE_MARGIN_PT, PAGE_MARGIN_PT * 0.55, text)
         canvas.drawRightString(A4[0] - PAGE_MARGIN_PT, PAGE_MARGIN_PT * 0.55,
                                "Planning figures only – see the cautions")

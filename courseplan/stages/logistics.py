@@ -119,6 +119,9 @@ class LogisticsResult:
     wait_min: float
     handful_g: float
     notes: tuple[str, ...] = field(default=())
+    work: Any = None
+    depots: Any = None
+    method: str = ""
 
     def summary(self) -> dict[str, Any]:
         """Plain, JSON-ready figures for ``summary.json`` under ``"order"`` and ``"crews"``.
@@ -150,6 +153,11 @@ class LogisticsResult:
             "chloride_kg": _r(o.chloride_kg, 1),
             "chloride_p90_kg": _r(o.chloride_p90_kg, 1),
             "storage_cautions": list(o.storage_cautions),
+            "deliveries": [] if self.depots is None else [
+                {"depot": d.depot, "crew": int(d.crew), "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
+                 "bags": int(d.bags), "bag_kg": _r(d.bag_kg, 1), "kg": _r(d.kg, 1),
+                 "pallets": None if d.pallets is None or d.pallets != d.pallets else int(d.pallets),
+                 "deliver_by": d.deliver_by} for d in self.depots.itertuples(index=False)],
         }
         crs = self.crews.crs
         zones = self.zones
@@ -176,6 +184,18 @@ class LogisticsResult:
                 "done_by": row.done_by,
                 "second_pass": row.second_pass if isinstance(row.second_pass, str) else None,
                 "notes": [n for n in self.notes if n.startswith(f"Crew {int(row.crew)} ")],
+                "work": [] if self.work is None else [
+                    {"zone_id": int(w.zone_id), "label": w.label, "pass_no": int(w.pass_no), "slot": w.slot,
+                     "from": w.start.strftime("%H:%M"), "to": w.end.strftime("%H:%M"),
+                     "spread_at": w.end.isoformat(timespec="minutes"), "dose_g_m2": _r(w.dose_g_m2, 0),
+                     "bags": int(w.bags),
+                     "handfuls_m2": None if w.handfuls_m2 != w.handfuls_m2 else _r(w.handfuls_m2, 1),
+                     "flow_kg_min": None if w.flow_kg_min != w.flow_kg_min else _r(w.flow_kg_min, 1)}
+                    for w in self.work[self.work["crew"] == row.crew].itertuples(index=False)],
+                "depot": None if self.depots is None else next(
+                    ({"name": d.depot, "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
+                      "bags": int(d.bags), "kg": _r(d.kg, 1), "deliver_by": d.deliver_by}
+                     for d in self.depots.itertuples(index=False) if int(d.crew) == int(row.crew)), None),
                 "zones": [{
                     "zone_id": int(z.zone_id),
                     "course_order": int(z.course_order),
@@ -195,6 +215,7 @@ class LogisticsResult:
                 "crews": {"count": len(crews), "crs": None if crs is None else crs.to_string(),
                           "first_start": self.first_start, "wait_min": _r(self.wait_min, 0),
                           "handful_g": _r(self.handful_g, 0), "notes": list(self.notes),
+                          "method": self.method,
                           "plan_notes": [n for n in self.notes if not n.startswith("Crew ")],
                           "crews": crews}}
 
@@ -233,7 +254,7 @@ def packages_for(total_kg: float, bag_kg: float, big_bag_kg: float | None, big_b
 
 
 def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float,
-               plan_p90_kg: float | None = None) -> Order:
+               plan_p90_kg: float | None = None, depots: Any = None) -> Order:
     """The order for the logistics lead from the zones table with its ``bags`` column.
 
     Parameters
@@ -263,13 +284,16 @@ def plan_order(zones: Any, settings: PlanSettings, agent: Any, bag_kg: float,
     n_out = int(bags.sum())
     handed = n_out * bag_kg
     big = lg.big_bag_kg if lg.big_bag_kg is not None else getattr(agent, "big_bag_kg", None)
-    pkgs = packages_for(handed, bag_kg, big, lg.big_bag_from_kg)
+    pkgs = packages_for(handed, bag_kg, big, lg.big_bag_from_kg) if depots is None else (
+        Package("bag", float(bag_kg), n_out),)  # delivered as the bags the crews carry, to their depots
     order_kg = float(sum(p.kg for p in pkgs))
     n_big = sum(p.count for p in pkgs if p.kind == "big bag")
     n_small = sum(p.count for p in pkgs if p.kind == "bag")
     per_pallet = lg.bags_per_pallet if lg.bags_per_pallet is not None else getattr(agent, "bags_per_pallet",
                                                                                    None)
     pallets = None if not per_pallet else int(math.ceil(n_small / per_pallet)) + n_big
+    if depots is not None and per_pallet:  # each depot gets its own pallets
+        pallets = int(sum(math.ceil(int(b) / per_pallet) for b in depots["bags"]))
     ratio = np.divide(kg90, kg, out=np.ones_like(kg), where=kg > 0)
     n_kg = np.nan_to_num(out["nitrogen_kg"].to_numpy(dtype=float))
     cl_kg = np.nan_to_num(out["chloride_kg"].to_numpy(dtype=float))

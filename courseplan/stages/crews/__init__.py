@@ -17,7 +17,7 @@ import pandas as pd
 
 from courseplan.errors import InputError, SettingsError
 from courseplan.settings import PlanSettings, minutes_of
-from courseplan.stages.crews.raceday import per_pass_dose, split_contiguous, spread_rate_m2_min
+from courseplan.stages.crews.raceday import per_pass_dose, split_contiguous, spread_rate_m2_min, work_rows
 
 
 def hhmm(minutes: float) -> str:
@@ -67,6 +67,8 @@ class CrewPlan:
     wait_min: float
     handful_g: float
     notes: tuple[str, ...] = ()
+    work: Any = None      # one row per crew, zone and pass in order of work (raceday.work_rows)
+    depots: Any = None    # one row per depot: name, x/y, lon/lat, bags, kg, pallets, deliver by
 
 
 def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any = None,
@@ -233,14 +235,23 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
     second = crews["second_pass"].astype(object)
     crews["second_pass"] = second.where(second.notna(), None)  # None, not NaN, for one pass
 
+    work = depots = None
     if pass_table is not None:  # timing from the passes actually planned (dosing), not from a window
         notes = [n for n in notes if not n.startswith("Crew ") and not n.startswith("The first start")]
         _times_from_passes(crews, out, pass_table)
+        work = work_rows(out, pass_table, settings, bag_kg, p90_scale=scale)
+        # the bags handed out are the bags of the passes: zones and crews add up to the order
+        per_zone = work.groupby("zone_id")["bags"].sum()
+        out["bags"] = out["zone_id"].map(per_zone).fillna(0).astype(int).to_numpy()
+        per_crew = work.groupby("crew")["bags"].sum()
+        crews["bags"] = crews["crew"].map(per_crew).fillna(0).astype(int).to_numpy()
+        depots = _depots(crews, settings, agent, bag_kg)
         if race_start:
             first_start = float(minutes_of(race_start, "[race] runs"))
         lg = dataclasses.replace(lg, wait_min=float(settings.dosing.tau_min))
     return CrewPlan(zones=out, crews=crews, bag_kg=bag_kg, first_start=hhmm(first_start),
-                    wait_min=float(lg.wait_min), handful_g=float(lg.handful_g), notes=tuple(notes))
+                    wait_min=float(lg.wait_min), handful_g=float(lg.handful_g), notes=tuple(notes), work=work,
+                    depots=depots)
 
 
 CARRY_LIMIT_KG = 25.0
@@ -305,3 +316,24 @@ def _times_from_passes(crews: Any, zones: Any, passes: Any) -> None:
             crews.loc[crews.index[i], "done_by"] = one["spread_at"].max().strftime("%H:%M")
         crews.loc[crews.index[i], "second_pass"] = (two["spread_at"].min().strftime("%H:%M")
                                                     if len(two) else None)
+
+
+def _depots(crews: Any, settings: PlanSettings, agent: Any, bag_kg: float) -> Any:
+    """One depot per crew: a name, where (working CRS and lon/lat), what waits there and by when."""
+    import geopandas as gpd
+    from pyproj import Transformer
+
+    lg = settings.logistics
+    per_pallet = lg.bags_per_pallet if lg.bags_per_pallet is not None else getattr(agent, "bags_per_pallet", None)
+    to_ll = Transformer.from_crs(crews.crs, "EPSG:4326", always_xy=True)
+    rows = []
+    for c in crews.itertuples(index=False):
+        lon, lat = to_ll.transform(float(c.depot_x), float(c.depot_y))
+        rows.append({"depot": f"Depot {int(c.crew)}", "crew": int(c.crew), "x": float(c.depot_x),
+                     "y": float(c.depot_y), "lon": float(lon), "lat": float(lat), "bags": int(c.bags),
+                     "bag_kg": float(bag_kg), "kg": float(c.bags * bag_kg),
+                     "pallets": int(math.ceil(c.bags / per_pallet)) if per_pallet else None,
+                     "deliver_by": c.start})
+    import shapely
+
+    return gpd.GeoDataFrame(rows, geometry=[shapely.Point(r["x"], r["y"]) for r in rows], crs=crews.crs)

@@ -222,3 +222,36 @@ def split_contiguous(work: np.ndarray, n: int) -> list[tuple[int, int]]:
         cuts.append((i, j))
         j = i
     return cuts[::-1]
+
+
+def work_rows(zones: Any, passes: Any, settings: PlanSettings, bag_kg: float, *, p90_scale: float = 1.0
+              ) -> Any:
+    """Each crew's work in order: one row per zone and pass, with its time window, dose and bags.
+
+    The window ends when the pass is spread (``spread_at``) and starts the pass's minutes earlier
+    (:func:`pass_minutes` at the pass's dose).  Bags cover the pass's P90 (scaled to the plan's P90)
+    plus the margin, once.  Hand crews get handfuls per square metre; spreader crews the flow to set
+    at the method's walking speed [kg/min].
+    """
+    lg = settings.logistics
+    m = METHODS[lg.method]
+    z = zones.set_index("zone_id")
+    rows = []
+    for r in passes.itertuples(index=False):
+        zr = z.loc[r.zone_id]
+        one = zr.to_frame().T
+        mins = float(pass_minutes(one, settings, np.array([r.dose_g_m2]), bag_kg)[0])
+        need = float(r.dose_p90_g_m2) * float(zr["area_m2"]) / 1000.0 * p90_scale * (1.0 + lg.margin_pct / 100.0)
+        bags = int(np.ceil(max(need, float(r.product_kg)) / bag_kg - 1e-9))
+        end = pd.Timestamp(r.spread_at)
+        rows.append({"crew": int(zr["crew"]), "work_order": int(zr["work_order"]), "zone_id": int(r.zone_id),
+                     "label": str(zr.get("label", r.zone_id)), "pass_no": int(r.pass_no), "slot": r.slot,
+                     "start": end - pd.Timedelta(minutes=mins), "end": end, "minutes": mins,
+                     "dose_g_m2": float(r.dose_g_m2), "bags": bags,
+                     "handfuls_m2": float(r.dose_g_m2) / lg.handful_g if m.name == "hand" else float("nan"),
+                     "flow_kg_min": (float("nan") if m.name == "hand" else
+                                     float(r.dose_g_m2) * m.swath_m * m.speed_m_s * 60.0 / 1000.0)})
+    cols = ["crew", "work_order", "zone_id", "label", "pass_no", "slot", "start", "end", "minutes", "dose_g_m2",
+            "bags", "handfuls_m2", "flow_kg_min"]
+    out = pd.DataFrame(rows, columns=cols)
+    return out.sort_values(["crew", "start", "work_order"], kind="stable").reset_index(drop=True)
