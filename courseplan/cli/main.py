@@ -1,4 +1,4 @@
-"""Command line: ``courseplan plan | check | sun | agents``.
+"""Command line: ``courseplan plan | check | sun | agents | ledger``.
 
 A thin layer: parse, build settings, call one library function (:mod:`courseplan.api`), print.
 Every command shares one error path (:mod:`courseplan.cli.common`): ``error: …`` on one line, exit
@@ -15,6 +15,7 @@ import click
 from courseplan.cli.agents import agents_command
 from courseplan.cli.common import (EXIT_INTERRUPTED, INTERRUPTED_LINE, install_signal_handlers,
                                    restore_signal_handlers)
+from courseplan.cli.ledger import ledger_command
 from courseplan.cli.plan import check_command, plan_command
 from courseplan.cli.sun import sun_command
 
@@ -31,7 +32,7 @@ def main() -> None:
     """
 
 
-for _cmd in (plan_command, check_command, sun_command, agents_command):
+for _cmd in (plan_command, check_command, sun_command, agents_command, ledger_command):
     main.add_command(_cmd)
 
 
