@@ -208,3 +208,16 @@ def test_a_malformed_ledger_stops_the_plan_before_anything_is_written(tmp_path):
     err = [ln for ln in res.output.splitlines() if ln.startswith("error:")]
     assert len(err) == 1 and "ledger" in err[0]
     assert not (tmp_path / "out").exists() and led.read_text(encoding="utf-8") == "not,a,ledger\n"
+
+
+def test_a_spreadsheet_ledger_with_semicolons_is_read_and_appended_in_kind(tmp_path):
+    led = tmp_path / "ledger.csv"
+    semi = SYNTHETIC.replace(",", ";")
+    semi = "\n".join(";".join(c.replace(".", ",") if c[:1].isdigit() and c.count(".") == 1 else c
+                              for c in ln.split(";")) for ln in semi.splitlines()) + "\n"
+    led.write_text(semi, encoding="utf-8-sig")
+    assert season_totals(read_ledger(led).rows)["totals"]["product"]["kg"] == pytest.approx(16.0)
+    append_plan(led, fake_result([2.5]))
+    text = led.read_text(encoding="utf-8")
+    assert text.startswith(semi) and text.splitlines()[-1].endswith(";2,500;0,000;1,500;plan")
+    assert season_totals(read_ledger(led).rows)["totals"]["product"]["kg"] == pytest.approx(18.5)
