@@ -109,8 +109,8 @@ def test_totals_add_up_by_hand(tmp_path):
     assert t["product"]["worst_zone"] == "1" and t["product"]["worst_g_m2"] == pytest.approx(30.0)
     assert t["nitrogen"]["worst_g_m2"] == pytest.approx(4.6)
     assert rep["by_agent"]["NaCl"]["product_kg"] == pytest.approx(6.0)
-    assert rep["by_agent"]["urea"] == pytest.approx({"product_kg": 1.0, "nitrogen_kg": 0.46, "chloride_kg": 0.0,
-                                                     "plans": 1})
+    urea = {"product_kg": 1.0, "nitrogen_kg": 0.46, "chloride_kg": 0.0, "plans": 1}
+    assert rep["by_agent"]["urea"] == pytest.approx(urea)
     whole = season_totals(read_ledger(led).rows)
     assert whole["totals"]["product"]["kg"] == pytest.approx(16.0) and whole["plans"] == 3
 
@@ -124,9 +124,11 @@ def test_a_limit_exceeded_is_reported_and_exit_is_0(tmp_path):
                         limits=Ledger(max_product_kg=5.0, max_product_g_m2=50.0))
     by_key = {lim["key"]: lim for lim in rep["limits"]}
     assert by_key["max_product_kg"]["over"] and by_key["max_product_kg"]["share_pct"] == pytest.approx(140.0)
-    assert not by_key["max_product_g_m2"]["over"] and by_key["max_product_g_m2"]["share_pct"] == pytest.approx(60.0)
+    per_area = by_key["max_product_g_m2"]
+    assert not per_area["over"] and per_area["share_pct"] == pytest.approx(60.0)
 
-    args = ["ledger", str(led), "--season-from", "2027-01-01", "--season-to", "2027-03-31", "--limits", str(plan)]
+    args = ["ledger", str(led), "--season-from", "2027-01-01", "--season-to", "2027-03-31",
+            "--limits", str(plan)]
     res = CliRunner().invoke(main, args)
     assert res.exit_code == 0, res.output
     lines = res.output.splitlines()
