@@ -19,6 +19,8 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     overwrite
         Replace an existing output folder that courseplan wrote (it holds the marker file), only once
         the new outputs are complete.  A lock beside the folder keeps a second run out meanwhile.
+        With a ``[ledger] file`` the plan's spread is then appended to the venue ledger (checked
+        before the plan runs; a plan version already there is skipped), and a note says what was done.
     progress
         Optional callable ``progress(stage_name)``.
 
@@ -27,7 +29,10 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     PlanResult
         The result that was written.
     """
+    import dataclasses
+
     from courseplan.io.files import OutputLock, refuse_existing, refuse_foreign_folder, refuse_out_over_inputs
+    from courseplan.io.ledger import append_plan, check_ledger
     from courseplan.io.loader import load_inputs
     from courseplan.io.outputs import write_outputs
     from courseplan.io.planfile import read_plan
@@ -41,10 +46,16 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
     refuse_out_over_inputs(out, input_paths(settings, plan_file))
     refuse_existing(out, overwrite, kind="folder")
     refuse_foreign_folder(out)
+    ledger_file = settings.ledger.file
+    if ledger_file is not None:
+        check_ledger(ledger_file)  # a malformed ledger stops the plan before anything is written
     with OutputLock(out):
         inputs = load_inputs(settings)
         result = run_plan(settings, inputs, progress=progress)
         write_outputs(result, out, overwrite=overwrite)
+    if ledger_file is not None:
+        done = append_plan(ledger_file, result, venue=settings.ledger.venue)
+        result = dataclasses.replace(result, notes=(*result.notes, done.note))
     return result
 
 
@@ -55,11 +66,30 @@ def input_paths(settings: PlanSettings, plan_file: Path | None = None) -> dict[s
     ins = settings.inputs
     named = {"course": ins.course, "sun raster": ins.sun, "DEM": ins.dem, "observations": ins.observations,
              "forecast": ins.forecast, "centreline": ins.centreline, "markers": ins.markers,
-             "agents file": ins.agents}
+             "agents file": ins.agents, "ledger": settings.ledger.file}
     paths = {k: Path(v) for k, v in named.items() if v is not None}
     for i, p in enumerate([*([plan_file] if plan_file else []), *plan_files_read()]):
         paths[f"plan file{'' if i == 0 else f' {i + 1}'}"] = Path(p)
     return paths
+
+
+def ledger(path: str | Path, *, season_from: str | None = None, season_to: str | None = None,
+           limits: str | Path | None = None) -> dict:
+    """Season totals of a venue ledger, against the season limits of a plan file's ``[ledger]`` table.
+
+    Returns
+    -------
+    dict
+        :func:`courseplan.io.ledger.season_totals`, plus ``ledger`` (the path) and ``limits_file``.
+    """
+    from courseplan.io.ledger import read_ledger, season_totals
+    from courseplan.io.planfile import read_plan
+
+    lim = read_plan(limits).ledger if limits is not None else None
+    led = read_ledger(path)
+    out = {"ledger": str(led.path), "limits_file": str(limits) if limits is not None else None}
+    out.update(season_totals(led.rows, season_from=season_from, season_to=season_to, limits=lim))
+    return out
 
 
 def check(settings: PlanSettings):

@@ -1,10 +1,10 @@
 """Plan settings: frozen dataclasses, one per plan-file table, loaded and validated from TOML.
 
 A plan file is TOML with the tables ``[plan]``, ``[inputs]``, ``[window]``, ``[race]``, ``[zoning]``,
-``[snow]``, ``[dosing]``, ``[forecast]``, ``[logistics]`` and ``[calibration]``.  Every key has a documented
+``[snow]``, ``[dosing]``, ``[forecast]``, ``[logistics]``, ``[calibration]`` and ``[ledger]``.  Every key has a documented
 default (``docs/plan-file.md``), so a plan file may be empty.  Unknown keys, wrong types and out-of-range
 values raise :class:`~courseplan.errors.SettingsError` naming the key, with the nearest valid key
-suggested.  Paths in ``[inputs]`` are relative to the plan file's folder.  This module opens no files.
+suggested.  Paths in ``[inputs]`` and ``[ledger]`` are relative to the plan file's folder.  This module opens no files.
 """
 
 from __future__ import annotations
@@ -255,6 +255,21 @@ class Logistics:
 
 
 @dataclass(frozen=True)
+class Ledger:
+    """``[ledger]``: the venue's season ledger of what was spread, and the season limits."""
+
+    file: Path | None = _f(None, "venue ledger CSV that every plan written appends its spread to, relative "
+                                 "to the plan file (default: no ledger; docs/logistics.md)")
+    venue: str | None = _f(None, "venue name written into the ledger")
+    max_product_kg: float | None = _f(None, "season limit of product (`courseplan ledger --limits`)",
+                                      unit="kg", lo=0.0)
+    max_nitrogen_kg: float | None = _f(None, "season limit of nitrogen", unit="kg", lo=0.0)
+    max_chloride_kg: float | None = _f(None, "season limit of chloride", unit="kg", lo=0.0)
+    max_product_g_m2: float | None = _f(None, "season limit of product per zone area (worst zone)",
+                                        unit="g/m²", lo=0.0)
+
+
+@dataclass(frozen=True)
 class PlanSettings:
     """All settings of one plan, one attribute per plan-file table."""
 
@@ -268,6 +283,7 @@ class PlanSettings:
     forecast: Forecast = field(default_factory=Forecast)
     logistics: Logistics = field(default_factory=Logistics)
     calibration: Calibration = field(default_factory=Calibration)
+    ledger: Ledger = field(default_factory=Ledger)
 
     def replace(self, **sections: Any) -> PlanSettings:
         """Return a copy with whole sections replaced."""
