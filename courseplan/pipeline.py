@@ -202,7 +202,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
         weather = weather_from_settings(settings, cs, steps=steps)
     ctx = prepare_dosing(zones, settings, agent, weather)
     results, worked = _race_day(zones, ctx, schedule, settings, bag_kg)
-    shortfall = _shortfall(zones, worked, schedule, settings)
+    shortfall = _shortfall(zones, worked, schedule, settings, ctx, bag_kg)
     late_notes = _late_notes(zones, worked, schedule, settings, day0, shortfall)
     zones, passes, dose_notes, plan_p90 = finish_dosing(ctx, results, schedule)
     check_stage("dosing", ctx.zones.columns, zones.columns)
@@ -293,8 +293,12 @@ def _fits(zones, worked, schedule, settings: PlanSettings) -> tuple[bool, set, o
     return (not missed_ids and not early), missed_ids, first_start
 
 
-def _shortfall(zones, worked, schedule, settings: PlanSettings):
-    """None when the crews can do the plan; else what is missing and how many crews would do it."""
+def _shortfall(zones, worked, schedule, settings: PlanSettings, ctx=None, bag_kg: float = 25.0):
+    """None when the crews can do the plan; else what is missing and how many crews would do it.
+
+    The crew count is found by planning the race day again with one crew more at a time (split,
+    timing and doses), up to 50.
+    """
     import dataclasses
 
     from courseplan.stages.crews.raceday import assign_crews
@@ -304,10 +308,15 @@ def _shortfall(zones, worked, schedule, settings: PlanSettings):
         return None
     lg = settings.logistics
     needed = None
+    base = zones.drop(columns=["crew", "work_order", "spread_min"])
     for n in range(lg.crews + 1, 51):
         s_n = settings.replace(logistics=dataclasses.replace(lg, crews=n))
-        z_n = assign_crews(zones.drop(columns=["crew", "work_order"]), s_n)
-        if _fits(z_n.assign(spread_min=zones["spread_min"]), worked, schedule, s_n)[0]:
+        z_n = assign_crews(base, s_n, bag_kg)
+        if ctx is not None:
+            _, w_n = _race_day(z_n, ctx, schedule, s_n, bag_kg)
+        else:
+            w_n = worked
+        if _fits(z_n, w_n, schedule, s_n)[0]:
             needed = n
             break
     earliest = _earliest(schedule, settings)

@@ -56,20 +56,12 @@ def _plain(v: Any) -> Any:
 
 
 def plan_version(result) -> str:
-    """A short fingerprint of what a plan asks the crews to do (12 hex digits of a SHA-256).
-
-    Two runs that spread the same product on the same zones at the same times get the same version;
-    any change of a dose, a zone or a time gives a new one.
-    """
-    import hashlib
+    """The plan's version (:func:`courseplan.io.ledger.plan_version`): the same figures, the same version."""
+    from courseplan.io.ledger import plan_version as version
 
     s = result.settings.plan
-    parts = [s.name, str(s.date), result.agent.name]
-    parts += [f"{int(z)}:{kg:.1f}" for z, kg in zip(result.zones["zone_id"], result.zones["product_kg"], strict=True)]
-    if getattr(result, "passes", None) is not None:
-        parts += [f"{int(r.zone_id)}/{int(r.pass_no)}@{pd.Timestamp(r.spread_at).isoformat()}"
-                  for r in result.passes.itertuples(index=False)]
-    return hashlib.sha256("|".join(parts).encode("utf-8")).hexdigest()[:12]
+    return version(s.date, s.name, result.agent.name,
+                   zip(result.zones["zone_id"], result.zones["product_kg"], strict=True))
 
 
 def summary_dict(result, issued_at: str | None = None) -> dict[str, Any]:
