@@ -100,12 +100,24 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
                         f"early enough for the agent to act ({num(cr['wait_min'], 0)} min); first run at "
                         f"{cr['first_start']}.",
                         st["small"])]
-    head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
-    body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
-             num(c["bags"] * c["bag_kg"]), c["start"], c["second_pass"] or "–"] for c in cr["crews"]]
-    story.append(_grid_table(head, body, st, total=None,
-                             widths=[18, 38, 22, 22, 12, 20, 14, 16]))
-    story += _notes_and_cautions(cr["notes"], cautions, st)
+    if o.get("deliveries"):
+        story[-1] = Paragraph("What is delivered where and by when: the bags the crews carry, on pallets, "
+                              "one depot per crew (the crew's first pass starts there).", st["small"])
+        head = ["Depot", "Crew", "Lat / lon", "Bags", "kg", "Pallets", "By", "2nd pass"]
+        by_crew = {c["crew"]: c for c in cr["crews"]}
+        body = [[escape(d["depot"]), by_crew[d["crew"]]["label"], f"{d['lat']:.5f} N / {d['lon']:.5f} E",
+                 str(d["bags"]), num(d["kg"], 0), "–" if d["pallets"] is None else str(d["pallets"]),
+                 d["deliver_by"], by_crew[d["crew"]]["second_pass"] or "–"] for d in o["deliveries"]]
+        total = ["Total", "", "", str(sum(d["bags"] for d in o["deliveries"])),
+                 num(sum(d["kg"] for d in o["deliveries"]), 0), str(o["pallets"] or "–"), "", ""]
+        story.append(_grid_table(head, body, st, total=total, widths=[18, 14, 40, 12, 16, 14, 12, 16]))
+    else:
+        head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
+        body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
+                 num(c["bags"] * c["bag_kg"]), c["start"], c["second_pass"] or "–"] for c in cr["crews"]]
+        story.append(_grid_table(head, body, st, total=None,
+                                 widths=[18, 38, 22, 22, 12, 20, 14, 16]))
+    story += _notes_and_cautions([n for n in cr["notes"] if n.startswith("SHORTFALL")], cautions, st)
     return _build(story, plan_name, plan_date, "Order sheet", issue)
 
 

@@ -243,6 +243,8 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
         # the bags handed out are the bags of the passes: zones and crews add up to the order
         per_zone = work.groupby("zone_id")["bags"].sum()
         out["bags"] = out["zone_id"].map(per_zone).fillna(0).astype(int).to_numpy()
+        two = work[work["pass_no"] == 2].groupby("crew")["start"].min()
+        crews["second_pass"] = [two[c].strftime("%H:%M") if c in two.index else None for c in crews["crew"]]
         per_crew = work.groupby("crew")["bags"].sum()
         crews["bags"] = crews["crew"].map(per_crew).fillna(0).astype(int).to_numpy()
         depots = _depots(crews, settings, agent, bag_kg)
