@@ -99,10 +99,9 @@ def plan_command(plan_file, out_dir, overwrite, quiet, show_zones, as_json, debu
     with err.status("planning…") as status:
         result = run(s, out_dir, overwrite=overwrite, progress=lambda name: status.update(f"{name}…"))
     if as_json:
-        import json
+        from courseplan.io.outputs import read_summary
 
-        # the very document written (one time of issue), not a second rendering of it
-        echo_json(json.loads((Path(out_dir) / "summary.json").read_text(encoding="utf-8")))
+        echo_json(read_summary(out_dir))  # the very document written (one time of issue)
         if result.shortfall is not None:
             sys.exit(EXIT_SHORTFALL)
         return

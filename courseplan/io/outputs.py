@@ -55,6 +55,11 @@ def _plain(v: Any) -> Any:
     return v
 
 
+def read_summary(out_dir: Path) -> dict[str, Any]:
+    """The ``summary.json`` a plan wrote into *out_dir*."""
+    return json.loads((Path(out_dir) / "summary.json").read_text(encoding="utf-8"))
+
+
 def plan_version(result) -> str:
     """The plan's version (:func:`courseplan.io.ledger.plan_version`): the same figures, the same version."""
     from courseplan.io.ledger import plan_version as version
