@@ -111,9 +111,13 @@ def summary_dict(result, issued_at: str | None = None) -> dict[str, Any]:
     return _plain(out)
 
 
+LEADING_NOTES = ("SHORTFALL", "calibrated on", "not calibrated", "calibration ")
+"""Notes every output shows first, above the cautions: the crews' shortfall and the calibration."""
+
+
 def _leading(result) -> list[str]:
-    """The cautions, led by the crew shortfall when there is one (it must lead every output)."""
-    lead = [n for n in result.notes if n.startswith("SHORTFALL")]
+    """The cautions, led by the shortfall and the calibration notes (they must be on every output)."""
+    lead = [n for n in result.notes if n.startswith(LEADING_NOTES)]
     return lead + list(result.cautions)
 
 
@@ -186,8 +190,8 @@ def write_gpkg(path: Path, result) -> None:
     pyogrio.write_dataframe(styles, path, layer="layer_styles", driver="GPKG", layer_options={"FID": "id"})
 
 
-def write_map(path: Path, result) -> None:
-    """Write the offline map page."""
+def write_map(path: Path, result, issue: str = "") -> None:
+    """Write the offline map page (*issue*: plan version and time of issue, shown with the title)."""
     from courseplan.columns import ALL
     from courseplan.render.context import context_from_raster
     from courseplan.render.webmap import render_map_html
@@ -199,7 +203,8 @@ def write_map(path: Path, result) -> None:
         sun_max = float(np.nanmax(vals)) if kind == "sun" and np.isfinite(vals).any() else 1.0
         ctx = context_from_raster(vals, result.context.transform, result.crs, kind=kind,
                                   sun_max=max(sun_max, 1e-9))
-    html = render_map_html(result.zones, result.course, title=result.settings.plan.name,
+    title = result.settings.plan.name + (f" — {issue}" if issue else "")
+    html = render_map_html(result.zones, result.course, title=title,
                            agent_label=result.agent.label, cautions=_leading(result),
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
@@ -242,11 +247,12 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
     try:
         pl = result.settings.plan
         write_gpkg(tmp / "zones.gpkg", result)
-        write_map(tmp / "map.html", result)
         summary = summary_dict(result)
+        issue = f"plan {summary['plan_version']}, issued {summary['issued_at'][:16].replace('T', ' ')}"
+        write_map(tmp / "map.html", result, issue=issue)
         write_text_atomic(tmp / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
         kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
-                  cautions=_leading(result), issue=f"plan {summary['plan_version']}, issued {summary['issued_at'][:16]}")
+                  cautions=_leading(result), issue=issue)
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
