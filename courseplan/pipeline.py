@@ -226,12 +226,13 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
                       shortfall=shortfall)
 
 
-def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
+def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float, *, after=None, hold_s=None):
     """The passes in race order: who needs one, when the crews spread it, what it takes.
 
     Pass 1 for every zone salt can work on; pass k for the zones soft again before run k ends.  Each
     pass is timed at the nominal dose, dosed, then timed again with the minutes its real dose takes
-    and dosed again (the spreading rate depends on the dose).
+    and dosed again (the spreading rate depends on the dose).  A replan starts at *after* with each zone
+    hard until *hold_s* [s of ``ctx``; −inf soft], in the breaks left then (:func:`replan_slots`).
     """
     from courseplan.schedule import pass_slots
     from courseplan.stages.crews.raceday import pass_minutes, time_pass
@@ -241,10 +242,11 @@ def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
     min_use = settings.dosing.min_useful_hold_min
     useless_by_slot: dict = {}
     results, worked = [], []
-    hold = np.full(len(zones), -np.inf)
+    hold = np.full(len(zones), -np.inf) if hold_s is None else np.asarray(hold_s, dtype=float).copy()
     can = ctx.blocked == ""
     has_pass = can
-    for slot in pass_slots(schedule, tau):
+    slots = pass_slots(schedule, tau) if after is None else replan_slots(schedule, tau, after)
+    for slot in slots:
         need = can if slot.number == 1 else can & has_pass & (hold < ctx.seconds([slot.must_hold_until])[0])
         if not need.any():
             continue
@@ -267,6 +269,17 @@ def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
         results.append((slot, res))
         worked.append((slot, need & ~useless, mins, missed, at, useless))
     return results, worked
+
+
+def replan_slots(schedule, tau_min: float, after) -> tuple:
+    """The pass slots left at *after*: the breaks whose run starts later, opening at *after* at the earliest."""
+    import dataclasses
+
+    from courseplan.schedule import pass_slots
+
+    tau = pd.Timedelta(minutes=tau_min)
+    return tuple(dataclasses.replace(k, opens=max(k.opens, after), short_break=k.deadline - max(k.opens, after) < tau)
+                 for k in pass_slots(schedule, tau_min)[1:] if k.deadline > after)
 
 
 def _earliest(schedule, settings: PlanSettings):
@@ -377,3 +390,61 @@ def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start
     order = plan_order(cp.zones, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg)
     return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
                            wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes)
+
+
+def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str, lead: str) -> tuple:
+    """Replan from *at* (docs/replan.md): holds from *spread* (``zone_id``, ``time`` ≤ at, ``g_m2``;
+    :func:`courseplan.stages.dosing.spread_rounds`); a zone's latest observation after its last spread
+    (bool ``soft``) makes it soft since then or hard at least until then, and its snow state doses
+    the top-ups in the breaks after *at*.  Returns (the replan's PlanResult — dose columns and order
+    for the top-ups only, passes with what was spread —, hold per zone [NaT soft], "soft"/"hard"/"").
+    """
+    import dataclasses
+    from types import SimpleNamespace
+
+    import geopandas as gpd
+
+    from courseplan.stages.conditions import assign_snow
+    from courseplan.stages.crews import crew_bag_kg
+    from courseplan.stages.dosing import VERDICTS, finish_dosing, prepare_dosing, spread_rounds
+
+    s, agent, sched, z0, n = morning.settings, morning.agent, morning.schedule, morning.zones, len(morning.zones)
+    ctx0 = prepare_dosing(z0, s, agent, morning.weather)
+    sp = spread.sort_values("time", kind="stable").reset_index(drop=True)
+    idx = pd.Index(z0["zone_id"].to_numpy()).get_indexer(sp["zone_id"])
+    done = SimpleNamespace(label=f"spread before {at:%H:%M}")
+    rounds, hold, last = spread_rounds(ctx0, idx, ctx0.seconds(sp["time"]), sp["g_m2"].to_numpy(float))
+    z, seen = z0.copy(), np.full(n, "", dtype=object)
+    if observations is not None and len(observations):
+        upd = assign_snow(z0, observations, s, window_start=at)
+        inside = (upd["snow_source"] == "observation").to_numpy()
+        cols = ["lwc_pct", "density_kg_m3", "snow_temp_c", "wetness", "grain", "snow_source",
+                "snow_source_detail", "obs_age_h", "obs_distance_m", "obs_stale", "lwc_from_class"]
+        z.loc[inside, cols] = upd.loc[inside, cols].to_numpy()
+        j = gpd.sjoin(observations, z0[["geometry"]], predicate="within").sort_values("time", kind="stable")
+        for zi, t, so in zip(j["index_right"].to_numpy(), ctx0.seconds(j["time"]), j["soft"], strict=True):
+            if t >= last[zi]:
+                seen[zi] = "soft" if so else "hard"
+                hold[zi] = min(hold[zi], t) if so else max(hold[zi], t)
+    ctx = prepare_dosing(z, s, agent, morning.weather)
+    results, worked = _race_day(z, ctx, sched, s, crew_bag_kg(s, agent), after=at, hold_s=hold)
+    z_all, p_all, notes, _ = finish_dosing(ctx, [(done, r) for r in rounds] + results, sched)
+    z_top, _, _, p90 = finish_dosing(ctx, results, sched)
+    got = z_top["passes"].to_numpy() > 0
+    for c in ("hard_until", "soft_min", "soft_in_run"):
+        z_top[c] = z_all[c]
+    z_top["verdict"] = np.where(got, z_all["verdict"], z0["verdict"])
+    z_top["advice"] = np.where(got, [VERDICTS.get(v, "") for v in z_top["verdict"]], z0["advice"])
+    shortfall = _shortfall(z, worked, sched, s)
+    day0 = sched.inspection_from - pd.Timedelta(hours=s.dosing.lead_h)
+    notes = [lead] + _late_notes(z, worked, sched, s, day0, shortfall) + notes
+    tops = p_all[p_all["slot"] != done.label].copy()
+    log = plan_logistics(gpd.GeoDataFrame(z_top, geometry="geometry", crs=morning.crs), s, agent, passes=tops,
+                         plan_p90_kg=p90, race_start=sched.first_start.strftime("%H:%M"))
+    obs = pd.concat([o for o in (morning.observations, observations) if o is not None and len(o)], ignore_index=True) \
+        if observations is not None and len(observations) else morning.observations
+    s2 = s.replace(plan=dataclasses.replace(s.plan, name=f"{s.plan.name} — {label}"))
+    out = dataclasses.replace(morning, settings=s2, zones=log.zones, observations=obs, logistics=log,
+                              notes=tuple(notes) + tuple(log.notes), passes=p_all, shortfall=shortfall)
+    return out, ctx.timestamp(hold), seen
+
