@@ -327,3 +327,105 @@ def patch_energy(settings, patch, catalogue=None, forecast: str | Path | None = 
         notes.append(f"the patch snow counts as {ctx.blocked[0]} in the model: a plan would not salt it")
     return dict(agent=agent, ctx=ctx, clear_sky=cs, weather=weather, irr=irr, slope=slope, aspect=aspect,
                 altitude=alt, terrain=terrain_src, notes=notes)
+
+
+def replan(settings: PlanSettings | str | Path, out_dir: str | Path, *, at: str, observations=None, spread=None,
+           as_planned: bool = False, previous=None, issued_at=None, progress=None) -> dict:
+    """Replan from *at* (``HH:MM``): top-ups into the breaks left, from what was spread and new observations.
+
+    The morning plan (zones, energy) is run again in memory; with *previous* (its folder) its passes
+    and bags come from there.  *spread* is a spread-record CSV (:mod:`courseplan.io.spreadfile`), or
+    *as_planned* takes the morning plan's passes spread before *at*.  Writes *out_dir* all or nothing
+    and returns ``result`` (the replan's PlanResult), ``topups`` and ``depots`` (tables),
+    ``plan_version`` and ``issued_at``.  See docs/replan.md.
+    """
+    import re
+
+    import numpy as np
+    import pandas as pd
+
+    from courseplan.errors import InputError
+    from courseplan.io.files import OutputLock, refuse_existing, refuse_out_over_inputs
+    from courseplan.io.loader import load_inputs
+    from courseplan.io.observations import read_observations
+    from courseplan.io.planfile import read_plan
+    from courseplan.io.spreadfile import read_previous, read_spread, replan_tables, write_replan
+    from courseplan.pipeline import run_plan, run_replan
+    from courseplan.stages.crews import crew_bag_kg
+
+    plan_file = None
+    if not isinstance(settings, PlanSettings):
+        plan_file, settings = Path(settings), read_plan(settings)
+    pl = settings.plan
+    if (spread is None) == (not as_planned):
+        raise InputError("say what was spread", where="replan", fix="give --spread FILE or --as-planned (one)")
+    if not re.fullmatch(r"\d{1,2}:\d{2}", str(at)) or pl.date is None:
+        raise InputError(f"--at {at!r} is not a time on the race day", where="--at",
+                         fix='give HH:MM, e.g. --at 10:50, and set [plan] date')
+    try:
+        t_at = pd.Timestamp(f"{pl.date} {at}").tz_localize(pl.timezone, nonexistent="raise")
+    except Exception:
+        raise InputError(f"--at {at} does not exist on {pl.date}", where="--at", fix="give another time") from None
+    issued = issued_at or pd.Timestamp.now(tz=pl.timezone).isoformat(timespec="minutes")
+    out = Path(out_dir)
+    extra = {k: Path(v) for k, v in (("observations (replan)", observations), ("spread records", spread)) if v}
+    refuse_out_over_inputs(out, {**input_paths(settings, plan_file), **extra})
+    refuse_existing(out, False, kind="folder")
+    prev = read_previous(previous) if previous else None
+    with OutputLock(out):
+        inputs = load_inputs(settings)
+        morning = run_plan(settings, inputs, progress=progress)
+        z0 = morning.zones
+        ids = z0["zone_id"].to_numpy()
+        if prev is not None and sorted(prev["zones"]["zone_id"]) != sorted(ids):
+            raise InputError("the previous plan's zones are not this plan file's zones", where=str(previous),
+                             fix="give the folder this plan file wrote, or leave --previous out")
+        obs = None
+        if observations:
+            obs = read_observations(Path(observations), inputs.crs, timezone=pl.timezone,
+                                    xy_crs=settings.inputs.observations_crs)
+            late = obs[obs["time"] > t_at]
+            if len(late):
+                raise InputError(f"observation(s) {', '.join(late['obs_id'].astype(str))} are after --at {at}",
+                                 where=str(observations), fix="replan at a later --at, or leave those rows out")
+            obs["soft"] = observed_soft(obs)
+        passes0 = prev["passes"] if prev is not None else morning.passes
+        bags0 = prev["zones"] if prev is not None else z0
+        area = dict(zip(ids, z0["area_m2"].to_numpy(float), strict=True))
+        if as_planned:
+            p = passes0[pd.to_datetime(passes0["spread_at"], utc=True) < t_at]
+            sp = pd.DataFrame({"zone_id": p["zone_id"].astype(int), "time": pd.to_datetime(p["spread_at"], utc=True),
+                               "g_m2": p["dose_g_m2"].astype(float), "kg": p["product_kg"].astype(float)})
+        else:
+            sp = read_spread(spread, date=pl.date, timezone=pl.timezone, at=t_at, zone_ids=ids)
+            a = sp["zone_id"].map(area).to_numpy(float)
+            sp["g_m2"] = np.where(np.isnan(sp["g_m2"]), sp["kg"] * 1000.0 / a, sp["g_m2"])
+            sp["kg"] = np.where(np.isnan(sp["kg"]), sp["g_m2"] * a / 1000.0, sp["kg"])
+        m = re.search(r"v(\d+)$", str((prev or {}).get("plan_version") or ""))
+        label = f"replan {t_at:%H:%M}, v{int(m[1]) + 1 if m else 2}"
+        lead = (f"{label.upper()}, issued {issued}: top-ups after {t_at:%H:%M} from what was spread "
+                f"({'as planned' if as_planned else Path(spread).name}) and the observations to {t_at:%H:%M}")
+        result, hold, seen = run_replan(morning, t_at, sp, obs, label=label, lead=lead)
+        topups, depots = replan_tables(result, t_at, sp, hold, seen, bags0, crew_bag_kg(settings, morning.agent))
+        info = {"plan_version": label, "issued_at": issued,
+                "replan": {"at": t_at.isoformat(timespec="minutes"), "spread": "as planned" if as_planned
+                           else str(spread), "observations": str(observations) if observations else None,
+                           "previous": str(previous) if previous else None,
+                           "topups": topups.to_dict("records"), "depots": depots.to_dict("records")}}
+        write_replan(result, out, extra=info, tables={"topups": topups, "depots": depots})
+    return {"result": result, "topups": topups, "depots": depots, "plan_version": label, "issued_at": issued}
+
+
+def observed_soft(obs):
+    """Whether each observation says soft: hand hardness 1–2 (fist, four fingers) where given, else
+    liquid water in the wet class or wetter (θ ≥ 3 %, Fierz et al. 2009); harder or drier is holding."""
+    import numpy as np
+    import pandas as pd
+
+    from courseplan.physics.snow import WETNESS_CLASSES
+    from courseplan.stages.conditions import observation_lwc
+
+    hh = pd.to_numeric(obs["hand_hardness"], errors="coerce").to_numpy(float)
+    wet = observation_lwc(obs)[0] >= WETNESS_CLASSES["wet"][0]
+    return np.where(np.isfinite(hh), hh <= 2, wet)
+
