@@ -244,7 +244,7 @@ def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float, *, af
     results, worked = [], []
     hold = np.full(len(zones), -np.inf) if hold_s is None else np.asarray(hold_s, dtype=float).copy()
     can = ctx.blocked == ""
-    has_pass = can
+    has_pass = can if after is None else can & (zones["crew"].to_numpy() > 0)  # a replan: zones in a round
     slots = pass_slots(schedule, tau) if after is None else replan_slots(schedule, tau, after)
     for slot in slots:
         need = can if slot.number == 1 else can & has_pass & (hold < ctx.seconds([slot.must_hold_until])[0])
@@ -441,10 +441,11 @@ def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str
     tops = p_all[p_all["slot"] != done.label].copy()
     log = plan_logistics(gpd.GeoDataFrame(z_top, geometry="geometry", crs=morning.crs), s, agent, passes=tops,
                          plan_p90_kg=p90, race_start=sched.first_start.strftime("%H:%M"))
+    log = dataclasses.replace(log, crews=log.crews[log.crews["n_zones"] > 0])  # crews without a top-up: no sheet
     obs = pd.concat([o for o in (morning.observations, observations) if o is not None and len(o)], ignore_index=True) \
         if observations is not None and len(observations) else morning.observations
     s2 = s.replace(plan=dataclasses.replace(s.plan, name=f"{s.plan.name} — {label}"))
     out = dataclasses.replace(morning, settings=s2, zones=log.zones, observations=obs, logistics=log,
                               notes=tuple(notes) + tuple(log.notes), passes=p_all, shortfall=shortfall)
-    return out, ctx.timestamp(hold), seen
+    return out, ["end of day" if v == np.inf else t for v, t in zip(hold, ctx.timestamp(hold), strict=True)], seen
 

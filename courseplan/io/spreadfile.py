@@ -164,15 +164,16 @@ def replan_tables(result, at, sp, hold, seen, bags0, bag_kg: float):
     tops = result.passes[~result.passes["slot"].str.startswith("spread before")]
     first = tops.sort_values("spread_at").groupby("zone_id").first()
     kg_spread = sp.groupby("zone_id")["kg"].sum()
+    crew_of = dict(zip(bags0["zone_id"].astype(int), bags0["crew"].astype(int), strict=True))
     rows = []
     for r, h, s in zip(z.itertuples(), hold, seen, strict=True):
         t = first.loc[r.zone_id] if r.zone_id in first.index else None
-        held = pd.notna(h) and (nxt is None or h >= nxt.end)
+        held = h == "end of day" or (pd.notna(h) and (nxt is None or h >= nxt.end))
         status = ("top-up" if t is not None else "leave alone" if held else
                   "no salt" if r.verdict not in ("treat", "treat-in-passes", "slush-risk") else "soft, no top-up")
-        rows.append({"zone_id": int(r.zone_id), "crew": int(r.crew), "status": status, "observed": s,
+        rows.append({"zone_id": int(r.zone_id), "crew": crew_of.get(int(r.zone_id), 0), "status": status, "observed": s,
                      "spread_kg": round(float(kg_spread.get(r.zone_id, 0.0)), 1),
-                     "hard_until_now": "soft" if pd.isna(h) else f"{h:%H:%M}",
+                     "hard_until_now": h if isinstance(h, str) else "soft" if pd.isna(h) else f"{h:%H:%M}",
                      "topup_at": "" if t is None else f"{t['spread_at']:%H:%M}",
                      "dose_g_m2": round(float(r.dose_g_m2), 1), "product_kg": round(float(r.product_kg), 1),
                      "bags": int(r.bags)})
