@@ -403,10 +403,11 @@ def replan(settings: PlanSettings | str | Path, out_dir: str | Path, *, at: str,
             sp["kg"] = np.where(np.isnan(sp["kg"]), sp["g_m2"] * a / 1000.0, sp["kg"])
         m = re.search(r"v(\d+)$", str((prev or {}).get("plan_version") or ""))
         label = f"replan {t_at:%H:%M}, v{int(m[1]) + 1 if m else 2}"
-        lead = (f"{label.upper()}, issued {issued}: top-ups after {t_at:%H:%M} from what was spread "
+        lead = (f"REPLAN {label[7:]}, issued {issued}: top-ups after {t_at:%H:%M} from what was spread "
                 f"({'as planned' if as_planned else Path(spread).name}) and the observations to {t_at:%H:%M}")
         result, hold, seen = run_replan(morning, t_at, sp, obs, label=label, lead=lead)
-        topups, depots = replan_tables(result, t_at, sp, hold, seen, bags0, crew_bag_kg(settings, morning.agent))
+        topups, depots = replan_tables(result, t_at, sp, hold, seen, bags0, crew_bag_kg(settings, morning.agent),
+                                       morning.logistics.crews)
         info = {"plan_version": label, "issued_at": issued,
                 "replan": {"at": t_at.isoformat(timespec="minutes"), "spread": "as planned" if as_planned
                            else str(spread), "observations": str(observations) if observations else None,

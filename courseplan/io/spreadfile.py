@@ -157,7 +157,7 @@ def write_replan(result, out_dir, *, extra: dict, tables: dict) -> list[Path]:
     return files
 
 
-def replan_tables(result, at, sp, hold, seen, bags0, bag_kg: float):
+def replan_tables(result, at, sp, hold, seen, bags0, bag_kg: float, crews):
     """Per zone: top-up, leave alone, soft without a top-up, or no salt; per depot: bags left and needed."""
     z, sched = result.zones, result.schedule
     nxt = next((r for r in sched.runs if r.start > at), None)
@@ -181,7 +181,7 @@ def replan_tables(result, at, sp, hold, seen, bags0, bag_kg: float):
     b0 = bags0.assign(crew=bags0["crew"].astype(int)).groupby("crew")["bags"].sum()
     used = topups.groupby("crew")["spread_kg"].sum()
     need = topups.groupby("crew")["bags"].sum()
-    dep = result.logistics.crews.set_index("crew")
+    dep = crews.set_index("crew")
     d = []
     for c in sorted((set(b0.index) | set(need.index)) - {0}):
         left = int(b0.get(c, 0)) - int(np.ceil(used.get(c, 0.0) / bag_kg - 1e-9))
