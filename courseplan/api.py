@@ -339,6 +339,7 @@ def replan(settings: PlanSettings | str | Path, out_dir: str | Path, *, at: str,
     and returns ``result`` (the replan's PlanResult), ``topups`` and ``depots`` (tables),
     ``plan_version`` and ``issued_at``.  See docs/replan.md.
     """
+    import dataclasses
     import re
 
     import numpy as np
@@ -406,6 +407,9 @@ def replan(settings: PlanSettings | str | Path, out_dir: str | Path, *, at: str,
         lead = (f"REPLAN {label[7:]}, issued {issued}: top-ups after {t_at:%H:%M} from what was spread "
                 f"({'as planned' if as_planned else Path(spread).name}) and the observations to {t_at:%H:%M}")
         result, hold, seen = run_replan(morning, t_at, sp, obs, label=label, lead=lead)
+        if obs is not None:  # the map and the GeoPackage show the morning's and the new observations
+            both = [o for o in (morning.observations, obs) if o is not None]
+            result = dataclasses.replace(result, observations=pd.concat(both, ignore_index=True))
         topups, depots = replan_tables(result, t_at, sp, hold, seen, bags0, crew_bag_kg(settings, morning.agent),
                                        morning.logistics.crews)
         info = {"plan_version": label, "issued_at": issued,

@@ -436,16 +436,14 @@ def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str
     z_top["verdict"] = np.where(got, z_all["verdict"], z0["verdict"])
     z_top["advice"] = np.where(got, [VERDICTS.get(v, "") for v in z_top["verdict"]], z0["advice"])
     shortfall = _shortfall(z, worked, sched, s)
-    day0 = sched.inspection_from - pd.Timedelta(hours=s.dosing.lead_h)
-    notes = [lead] + _late_notes(z, worked, sched, s, day0, shortfall) + notes
+    notes = [lead] + _late_notes(z, worked, sched, s, sched.inspection_from - pd.Timedelta(hours=s.dosing.lead_h),
+                                 shortfall) + notes
     tops = p_all[p_all["slot"] != done.label].copy()
     log = plan_logistics(gpd.GeoDataFrame(z_top, geometry="geometry", crs=morning.crs), s, agent, passes=tops,
                          plan_p90_kg=p90, race_start=sched.first_start.strftime("%H:%M"))
     log = dataclasses.replace(log, crews=log.crews[log.crews["n_zones"] > 0])  # crews without a top-up: no sheet
-    obs = pd.concat([o for o in (morning.observations, observations) if o is not None and len(o)], ignore_index=True) \
-        if observations is not None and len(observations) else morning.observations
-    s2 = s.replace(plan=dataclasses.replace(s.plan, name=f"{s.plan.name} — {label}"))
-    out = dataclasses.replace(morning, settings=s2, zones=log.zones, observations=obs, logistics=log,
+    s2 = s.replace(plan=dataclasses.replace(s.plan, name=f"{s.plan.name} — {label}"))  # the version on every output
+    out = dataclasses.replace(morning, settings=s2, zones=log.zones, logistics=log,
                               notes=tuple(notes) + tuple(log.notes), passes=p_all, shortfall=shortfall)
     return out, ["end of day" if v == np.inf else t for v, t in zip(hold, ctx.timestamp(hold), strict=True)], seen
 

@@ -126,3 +126,10 @@ def test_spread_file_in_kg_and_previous_folder(tmp_path):
     assert doc["plan_version"] == "replan 10:50, v2"
     t = pd.read_csv(out / "topups.csv").set_index("zone_id")
     assert t.loc[9, "spread_kg"] == 300 and t.loc[13, "spread_kg"] == 150 and t.loc[1, "spread_kg"] == 0
+
+
+def test_replan_summary_validates(base):
+    jsonschema = pytest.importorskip("jsonschema")
+    schema = json.loads((ROOT / "courseplan" / "schema" / "summary.schema.json").read_text(encoding="utf-8"))
+    doc = json.loads((base[1] / "summary.json").read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator(schema, format_checker=jsonschema.FormatChecker()).validate(doc)
