@@ -226,12 +226,13 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
                       shortfall=shortfall)
 
 
-def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
+def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float, *, after=None, hold_s=None):
     """The passes in race order: who needs one, when the crews spread it, what it takes.
 
     Pass 1 for every zone salt can work on; pass k for the zones soft again before run k ends.  Each
     pass is timed at the nominal dose, dosed, then timed again with the minutes its real dose takes
-    and dosed again (the spreading rate depends on the dose).
+    and dosed again (the spreading rate depends on the dose).  A replan starts at *after* with each zone
+    hard until *hold_s* [s of ``ctx``; −inf soft], in the breaks left then (:func:`replan_slots`).
     """
     from courseplan.schedule import pass_slots
     from courseplan.stages.crews.raceday import pass_minutes, time_pass
@@ -241,10 +242,11 @@ def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
     min_use = settings.dosing.min_useful_hold_min
     useless_by_slot: dict = {}
     results, worked = [], []
-    hold = np.full(len(zones), -np.inf)
+    hold = np.full(len(zones), -np.inf) if hold_s is None else np.asarray(hold_s, dtype=float).copy()
     can = ctx.blocked == ""
-    has_pass = can
-    for slot in pass_slots(schedule, tau):
+    has_pass = can if after is None else can & (zones["crew"].to_numpy() > 0)  # a replan: zones in a round
+    slots = pass_slots(schedule, tau) if after is None else replan_slots(schedule, tau, after)
+    for slot in slots:
         need = can if slot.number == 1 else can & has_pass & (hold < ctx.seconds([slot.must_hold_until])[0])
         if not need.any():
             continue
@@ -267,6 +269,17 @@ def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float):
         results.append((slot, res))
         worked.append((slot, need & ~useless, mins, missed, at, useless))
     return results, worked
+
+
+def replan_slots(schedule, tau_min: float, after) -> tuple:
+    """The pass slots left at *after*: the breaks whose run starts later, opening at *after* at the earliest."""
+    import dataclasses
+
+    from courseplan.schedule import pass_slots
+
+    tau = pd.Timedelta(minutes=tau_min)
+    return tuple(dataclasses.replace(k, opens=max(k.opens, after), short_break=k.deadline - max(k.opens, after) < tau)
+                 for k in pass_slots(schedule, tau_min)[1:] if k.deadline > after)
 
 
 def _earliest(schedule, settings: PlanSettings):
@@ -389,3 +402,5 @@ def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start
     return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
                            wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes, work=cp.work,
                            depots=cp.depots, method=METHODS[settings.logistics.method].label)
+
+

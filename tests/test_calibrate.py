@@ -12,7 +12,7 @@ from click.testing import CliRunner
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from courseplan.api import calibrate, patch_energy
+from courseplan.io.calibrate import calibrate, patch_energy
 from courseplan.calibration import calibrated_refreeze_share, calibration_notes
 from courseplan.cli.main import main
 from courseplan.io.patchfile import read_patch

@@ -21,9 +21,10 @@ ALLOWED: dict[str, set[str]] = {
     "geo": {"errors", "grid", "geo"},
     "stages": CORE | {"physics", "geo"},          # + its own module only (checked separately)
     "pipeline": CORE | {"physics", "geo", "stages"},
+    "replan": CORE | {"physics", "geo", "stages", "pipeline"},   # the pipeline's second entry
     "render": CORE | {"physics", "geo", "render"},
     "io": CORE | {"physics", "geo", "stages", "pipeline", "render", "io", "__init__"},
-    "api": CORE | {"physics", "geo", "stages", "pipeline", "render", "io"},
+    "api": CORE | {"physics", "geo", "stages", "pipeline", "replan", "render", "io"},
     "cli": {"api", "io", "settings", "errors", "cli", "__init__"},
     "__init__": set(),
 }

@@ -72,7 +72,7 @@ def calibrate_command(plan_file: Path, patch_file: Path, dry_run: bool, forecast
     """
     import json
 
-    from courseplan.api import calibrate
+    from courseplan.io.calibrate import calibrate
 
     r = calibrate(plan_file, patch_file, dry_run=dry_run, forecast=forecast)
     if as_json:

@@ -1,4 +1,4 @@
-"""Command line: ``courseplan plan | check | sun | agents | calibrate | ledger``.
+"""Command line: ``courseplan plan | check | sun | agents | calibrate | replan | ledger``.
 
 A thin layer: parse, build settings, call one library function (:mod:`courseplan.api`), print.
 Every command shares one error path (:mod:`courseplan.cli.common`): ``error: …`` on one line, exit
@@ -22,6 +22,7 @@ from courseplan.cli.common import (
 )
 from courseplan.cli.ledger import ledger_command
 from courseplan.cli.plan import check_command, plan_command
+from courseplan.cli.replan import replan_command
 from courseplan.cli.sun import sun_command
 
 
@@ -37,7 +38,8 @@ def main() -> None:
     """
 
 
-for _cmd in (plan_command, check_command, sun_command, agents_command, calibrate_command, ledger_command):
+for _cmd in (plan_command, check_command, sun_command, agents_command, calibrate_command, replan_command,
+             ledger_command):
     main.add_command(_cmd)
 
 

@@ -28,13 +28,13 @@ from courseplan.calibration import calibrated_refreeze_share
 from courseplan.errors import InputError
 from courseplan.physics import energy
 from courseplan.physics.dose import NEW_SNOW_GRAINS, latin_hypercube, sample_lwc_pct
-from courseplan.physics.hold import EnergySeries, keep_hard, pass_dose
+from courseplan.physics.hold import EnergySeries, first_gain_time_s, keep_hard, pass_dose
 from courseplan.physics.snow import WETNESS_CLASSES, class_range_text
 
 if TYPE_CHECKING:  # the weather stage's record, for annotations only
     from courseplan.stages.weather import Weather
 
-__all__ = ["DoseContext", "PassResult", "VERDICTS", "dose_pass", "finish_dosing", "prepare_dosing"]
+__all__ = ["DoseContext", "PassResult", "VERDICTS", "dose_pass", "finish_dosing", "prepare_dosing", "spread_pass", "spread_rounds"]
 
 REQUIRED = ("zone_id", "irradiation_wh_m2", "area_m2", "lwc_pct", "wetness", "density_kg_m3",
             "snow_temp_c", "grain", "snow_source")
@@ -389,3 +389,55 @@ def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, sched
                          f"{schedule.last_end:%H:%M} would take {int(np.sum(np.where(go, kh.passes, 0)))} passes "
                          f"and {kg:,.0f} kg (P50), against {plan_kg:,.0f} kg in this plan")
     return notes
+
+
+def spread_pass(ctx: DoseContext, zone_index, spread_at_s, g_m2) -> PassResult:
+    """What a pass that was actually spread did: the hold of *g_m2* spread at *spread_at_s* (replan).
+
+    One entry per spread record (``zone_index`` into ``ctx.zones``).  The pass the model would dose at
+    that time gives the reserve R and the sun while acting E_k; a smaller spread pays the sun first and
+    builds the rest, R_eff = min(R, (R + E_k)·D/D_k − E_k) ≥ 0 (Eq. C1 is linear in the salt), and the
+    zone is hard from t + τ until the sun has re-supplied R_eff (Eq. C2).  R_eff = 0: never hardened.
+    """
+    i = np.asarray(zone_index, dtype=int)
+    t = np.asarray(spread_at_s, dtype=float)
+    d = np.asarray(g_m2, dtype=float)
+    series = EnergySeries(ctx.nominal.flux_w_m2[i], ctx.dt_s)
+    nom = pass_dose(ctx.agent, series, t, ctx.lwc[i], ctx.rho[i], **ctx.kw)
+    need = np.asarray(nom.product_g_m2, dtype=float)
+    res, e_k = np.asarray(nom.reserve, dtype=float), np.asarray(nom.e_k, dtype=float)
+    share = np.where(need > 0, d / np.where(need > 0, need, 1.0), 1.0)
+    r_eff = np.clip(np.minimum(res, (res + e_k) * share - e_k), 0.0, None)
+    r_eff = np.where(np.isfinite(r_eff) & (ctx.blocked[i] == ""), r_eff, 0.0)
+    h = t + ctx.kw["tau_s"]
+    until = np.where(r_eff > 0, np.asarray(first_gain_time_s(series, h, r_eff), dtype=float), -np.inf)
+    nan = np.full(t.shape, np.nan)
+    return PassResult(spread_at_s=t, dose_g_m2=d, dose_p90_g_m2=d, sub_passes=np.ones(t.shape, dtype=int),
+                      hard_from_s=np.where(r_eff > 0, h, nan), hard_until_s=until, layer_temp_c=nan,
+                      temp_flag=np.zeros(t.shape, bool), water_first=np.zeros(t.shape, bool),
+                      slush_risk=np.zeros(t.shape, bool), energy_j_m2=e_k, sample_kg=np.zeros(1))
+
+
+def spread_rounds(ctx: DoseContext, zone_index, spread_at_s, g_m2) -> tuple:
+    """The spread records as passes for all zones: the k-th spread of each zone in round k.
+
+    Returns (list of :class:`PassResult` per round, each zone's hold end [s; −inf soft], its last
+    spread [s; −inf none]).  Records must come in time order.
+    """
+    idx = np.asarray(zone_index, dtype=int)
+    rec = spread_pass(ctx, idx, spread_at_s, g_m2)
+    n = len(ctx.zones)
+    rank = pd.Series(idx).groupby(idx).cumcount().to_numpy()
+    hold, last, rounds = np.full(n, -np.inf), np.full(n, -np.inf), []
+    for k in range(int(rank.max()) + 1 if idx.size else 0):
+        sel = rank == k
+        f = {"sample_kg": np.zeros(1)}
+        for name in PassResult.__dataclass_fields__:
+            a = getattr(rec, name)
+            if name != "sample_kg":
+                f[name] = np.zeros(n, dtype=a.dtype) if a.dtype.kind in "bi" else np.full(n, np.nan)
+                f[name][idx[sel]] = a[sel]
+        rounds.append(PassResult(**f))
+        hold[idx[sel]] = np.maximum(hold[idx[sel]], rec.hard_until_s[sel])
+        last[idx[sel]] = rec.spread_at_s[sel]
+    return rounds, hold, last
