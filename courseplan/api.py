@@ -237,6 +237,10 @@ def replan(settings: PlanSettings | str | Path, out_dir: str | Path, *, at: str,
                            "previous": str(previous) if previous else None,
                            "topups": topups.to_dict("records"), "depots": depots.to_dict("records")}}
         write_replan(result, out, extra=info, tables={"topups": topups, "depots": depots})
+        if settings.ledger.file is not None and not as_planned:  # what was really spread goes to the ledger
+            from courseplan.io.ledger import append_spread
+
+            append_spread(settings.ledger.file, morning, sp, venue=settings.ledger.venue)
     return {"result": result, "topups": topups, "depots": depots, "plan_version": label, "issued_at": issued}
 
 

@@ -223,3 +223,17 @@ def test_a_spreadsheet_ledger_with_semicolons_is_read_and_appended_in_kind(tmp_p
     text = led.read_text(encoding="utf-8")
     assert text.startswith(semi) and text.splitlines()[-1].endswith(";2,500;0,000;1,500;plan")
     assert season_totals(read_ledger(led).rows)["totals"]["product"]["kg"] == pytest.approx(18.5)
+
+
+def test_spread_records_replace_that_days_plan_in_the_season_totals():
+    # hand arithmetic: the morning plan said 10 + 20 kg; the crews report 12 kg spread on zone 1 only
+    from courseplan.io.ledger import SPREAD_SOURCE, season_totals
+
+    base = dict(venue="", agent="NaCl", area_m2=1000.0, nitrogen_kg=0.0, chloride_kg=0.0, plan_version="v",
+                entry_id="e", written_at="")
+    rows = [dict(base, date="2027-03-18", plan="GS", zone_id="1", product_kg=10.0, source="plan"),
+            dict(base, date="2027-03-18", plan="GS", zone_id="2", product_kg=20.0, source="plan"),
+            dict(base, date="2027-03-18", plan="GS", zone_id="1", product_kg=12.0, source=SPREAD_SOURCE),
+            dict(base, date="2027-03-19", plan="GS", zone_id="1", product_kg=5.0, source="plan")]
+    t = season_totals(rows)
+    assert t["totals"]["product"]["kg"] == pytest.approx(12.0 + 5.0)

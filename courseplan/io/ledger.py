@@ -223,6 +223,31 @@ def append_plan(path: Path | str, result, *, venue: str | None = None, source: s
     return append_rows(path, version, rows)
 
 
+SPREAD_SOURCE = "spread records"
+"""Source of the rows a replan appends: what the crews report as spread (these replace that day's plan)."""
+
+
+def append_spread(path: Path | str, morning, spread, *, venue: str | None = None) -> AppendOutcome:
+    """Append what was really spread on the day (a replan's spread records) to the ledger.
+
+    *spread* has ``zone_id`` and ``kg``; nitrogen and chloride follow from the agent (purity ×
+    fraction).  The season totals count these rows instead of the morning plan's for that day.
+    """
+    s, ag = morning.settings, morning.agent
+    purity = s.dosing.purity if s.dosing.purity is not None else ag.purity
+    kg = spread.groupby("zone_id")["kg"].sum()
+    area = dict(zip(morning.zones["zone_id"].astype(int), morning.zones["area_m2"].astype(float), strict=True))
+    version = plan_version(s.plan.date, f"{s.plan.name} (spread)", ag.name, kg.items())
+    at = dt.datetime.now(dt.UTC).isoformat(timespec="seconds")
+    rows = [{"entry_id": f"{version}-{z}", "plan_version": version, "written_at": at, "venue": venue or "",
+             "date": s.plan.date or "", "plan": s.plan.name, "agent": ag.name, "zone_id": str(int(z)),
+             "area_m2": area.get(int(z), float("nan")), "product_kg": float(k),
+             "nitrogen_kg": float(k) * purity * ag.nitrogen_fraction,
+             "chloride_kg": float(k) * purity * ag.chloride_fraction, "source": SPREAD_SOURCE}
+            for z, k in kg.items() if float(k) > 0]
+    return append_rows(path, version, rows)
+
+
 def append_rows(path: Path | str, version: str, rows: list[dict[str, Any]]) -> AppendOutcome:
     """Append *rows* of plan *version* to the ledger (see :func:`append_plan`)."""
     from courseplan.io.files import write_text_atomic
@@ -291,6 +316,9 @@ def season_totals(rows: Iterable[dict[str, Any]], *, season_from: str | None = N
     """
     sel = [r for r in rows if (season_from is None or r["date"] >= season_from)
            and (season_to is None or r["date"] <= season_to)]
+    # what was really spread wins: a day with spread records (from a replan) counts those, not its plan
+    spread_days = {(r["date"], r["plan"]) for r in sel if r.get("source") == SPREAD_SOURCE}
+    sel = [r for r in sel if not (r.get("source") == "plan" and (r["date"], r["plan"]) in spread_days)]
     qty = ("product", "nitrogen", "chloride")
     zones: dict[str, dict[str, float]] = {}
     agents: dict[str, dict[str, Any]] = {}
