@@ -254,7 +254,8 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         kw = dict(plan_name=pl.name, plan_date=pl.date, agent_label=result.agent.label,
                   cautions=_leading(result), issue=issue)
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
-        write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw)
+        write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw,
+                        marks={"Start": tuple(result.start_xy), "Finish": tuple(result.finish_xy)})
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
                           "this folder\n", what="output marker")
         for f in tmp.iterdir():  # as a plain mkdir/open would make them under the umask (0755/0644)

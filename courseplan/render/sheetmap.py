@@ -25,9 +25,14 @@ FONT, FONT_BOLD, FONT_ITALIC = _register_fonts()
 
 
 def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float], width: float,
-                height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None
+                height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None,
+                marks: dict[str, tuple[float, float]] | None = None
                 ) -> tuple[Any, tuple[float, float, float, float]]:
-    """Draw a vector map: course outline, treated zones (grey), the crew's zones (hatched), depot."""
+    """Draw a vector map: course outline, treated zones (grey), the crew's zones (hatched), depot.
+
+    *marks* names points to draw as a black ring with their name (the course's start and finish);
+    those outside the view are left out.
+    """
     import shapely
     from reportlab.graphics.shapes import Drawing, Group, Rect, String
     from reportlab.lib import colors
@@ -77,7 +82,7 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
             t = tf(z.geometry)
             if t.is_empty:
                 continue
-            label = str(int(z.zone_id))
+            label = str(getattr(z, "label", "") or int(z.zone_id))
             _add_label(g, t, label, taken, frame)
         # depot: a black triangle with a label, drawn over everything
         from reportlab.graphics.shapes import Polygon
@@ -85,6 +90,14 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
                       strokeColor=colors.white, strokeWidth=0.6))
         g.add(Rect(px + 6, py - 4, 30, 9, fillColor=colors.white, strokeColor=None))
         g.add(String(px + 7, py - 2, "Depot", fontName=FONT_BOLD, fontSize=7.5))
+        from reportlab.graphics.shapes import Circle
+        for name, (mx, my) in (marks or {}).items():
+            qx, qy = (mx - vx0) * scale + pad, (my - vy0) * scale + pad
+            if not (pad <= qx <= width - pad and pad <= qy <= height - pad):
+                continue
+            g.add(Circle(qx, qy, 3.5, fillColor=colors.white, strokeColor=colors.black, strokeWidth=1.4))
+            g.add(Rect(qx + 5, qy - 4, 6 + 4.2 * len(name), 9, fillColor=colors.white, strokeColor=None))
+            g.add(String(qx + 6, qy - 2, name, fontName=FONT_BOLD, fontSize=7.5))
         _add_scale_bar(g, scale, pad)
     elif view_of is not None:
         from reportlab.graphics.shapes import Rect as R

@@ -123,7 +123,7 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
 
 def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
               plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...],
-              issue: str = "") -> bytes:
+              issue: str = "", marks: dict[str, tuple[float, float]] | None = None) -> bytes:
     """Build the crew sheets, one page per crew (PDF bytes).
 
     Each page: a map of the crew's zones on the course outline (with zone numbers and the depot), an
@@ -165,7 +165,7 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
         if c.get("work"):
             story.append(KeepInFrame(frame_w, frame_h, _race_day_page(
                 c, cr, course_geom, treated_geoms, plan_name=plan_name, plan_date=plan_date,
-                agent_label=agent_label, cautions=cautions, issue=issue, st=st), mode="shrink"))
+                agent_label=agent_label, cautions=cautions, issue=issue, st=st, marks=marks), mode="shrink"))
             if n < len(cr["crews"]) - 1:
                 story.append(PageBreak())
             continue
@@ -224,7 +224,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
 
 
 def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, plan_name: str,
-                   plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict) -> list[Any]:
+                   plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict,
+                   marks: dict[str, tuple[float, float]] | None = None) -> list[Any]:
     """One crew's page: crew, depot, map, then the work in order (zone, pass, window, dose, bags, rate)."""
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, Spacer
@@ -234,7 +235,7 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
     mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
     depot = (c["depot_x"], c["depot_y"])
     map_h = max(50.0, 85.0 - 2.5 * max(len(c["work"]) - 10, 0)) * mm
-    detail, _ = map_drawing(course_geom, treated_geoms, mine, depot, frame_w, map_h, detail=True)
+    detail, _ = map_drawing(course_geom, treated_geoms, mine, depot, frame_w, map_h, detail=True, marks=marks)
     hand = any(w["handfuls_m2"] is not None for w in c["work"])
     head = ["Zone", "Pass", "Spread from – to", "Dose g/m²", "Bags",
             "Handfuls per m²" if hand else "Spreader kg/min"]
