@@ -69,6 +69,7 @@ class LoadedInputs:
     forecast: pd.DataFrame | None = None
     centreline: BaseGeometry | None = None
     markers: tuple[tuple[str, float, float], ...] = ()
+    no_salt: tuple = ()  # (name, polygon) in the working CRS, cut out of the course before zoning
     catalogue: dict | None = None
     notes: tuple[str, ...] = field(default=())
     sources: dict = field(default_factory=dict)
@@ -94,6 +95,7 @@ class PlanResult:
     sources: dict
     passes: Any = None  # pandas.DataFrame, one row per zone and pass (courseplan.columns.PASSES)
     shortfall: Any = None  # dict when the crews cannot do the plan in time (see _shortfall), else None
+    no_salt: Any = None  # GeoDataFrame of the no-salt areas on the course (name, area_m2), or None
     schedule: Any = None  # courseplan.schedule.RaceSchedule
 
     def totals(self) -> dict[str, Any]:
@@ -106,6 +108,7 @@ class PlanResult:
             "zone_count": int(len(z)),
             "treated_zone_count": int(treated.sum()),
             "course_area_m2": float(self.course.geometry.iloc[0].area),
+            "no_salt_area_m2": float(self.no_salt["area_m2"].sum()) if self.no_salt is not None else 0.0,
             "course_surface_area_m2": float(z["area_m2"].sum()),
             "treated_area_m2": float(z.loc[treated, "area_m2"].sum()),
             "total_product_kg": float(z["product_kg"].sum()),
@@ -174,7 +177,9 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     notes = list(inputs.notes) + list(schedule.notes) + list(ps.notes)
 
     step("zoning")
-    zres = zone_course(ZoningInputs(course=inputs.course, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
+    course_z, no_salt, ns_notes = _cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
+    notes += ns_notes
+    zres = zone_course(ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
                                     aspect_deg=ps.aspect, elevation_m=ps.elevation,
                                     start_xy=_start_in_work(settings, inputs),
                                     centreline=inputs.centreline, markers=inputs.markers),
@@ -223,7 +228,30 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
                       logistics=log, weather=weather, start_xy=zres.start_xy, finish_xy=zres.finish_xy,
                       crs=inputs.crs, notes=tuple(notes) + tuple(log.notes), cautions=cautions,
                       context=context, sources=sources, passes=passes, schedule=schedule,
-                      shortfall=shortfall)
+                      shortfall=shortfall, no_salt=no_salt)
+
+
+def _cut_no_salt(course, areas, crs):
+    """The course less its no-salt areas (zoned and dosed), the areas on the course, and a note."""
+    import geopandas as gpd
+    import shapely
+
+    if not areas:
+        return course, None, []
+    cut = [(name, shapely.intersection(geom, course)) for name, geom in areas]
+    cut = [(n, g) for n, g in cut if not g.is_empty and g.area > 0]
+    if not cut:
+        return course, None, ["the no-salt areas do not touch the course"]
+    rest = shapely.difference(course, shapely.union_all([g for _, g in cut]))
+    if rest.is_empty or rest.area < 1.0:
+        raise SettingsError("the no-salt areas cover the whole course", where="[inputs] no_salt",
+                            fix="check the files and buffers")
+    table = gpd.GeoDataFrame({"name": [n for n, _ in cut], "area_m2": [float(g.area) for _, g in cut]},
+                             geometry=[g for _, g in cut], crs=crs)
+    total = float(shapely.union_all(table.geometry.to_numpy()).area)
+    note = (f"no salt on {total:,.0f} m² ({total / course.area:.1%} of the course): "
+            + ", ".join(f"{n} {a:,.0f} m²" for n, a in zip(table["name"], table["area_m2"], strict=True)))
+    return rest, table, [note]
 
 
 def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float, *, after=None, hold_s=None):

@@ -70,6 +70,11 @@ class Inputs:
     centreline_feature: str | None = _f(None, "which line of several (GPX tracks and routes, KML "
                                               "placemarks) is the centreline: a `name` or a 0-based index")
     markers: Path | None = _f(None, "named section markers along the course (vector points)")
+    no_salt: list[Path] = _f(None, "areas that get no salt (finish area, streams, timing cables, lift "
+                                   "crossings): vector files of polygons, lines or points", factory=list)
+    no_salt_buffer_m: list[float] = _f(None, "buffer around each no_salt file, in the same order (lines and "
+                                             "points need one; missing entries are 0)", unit="m",
+                                       factory=list)
     agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
     crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "
                                "course's if metric, else the local UTM zone)")

@@ -389,6 +389,10 @@ dem = "terrain.tif"
 observations = "observations.csv"
 forecast = "forecast.csv"
 centreline = "centreline.geojson"
+# invented no-salt areas (drawn by hand, kept beside this script): the finish area, and a stream
+# crossing the course with 8 m either side
+no_salt = ["no-salt-finish.geojson", "no-salt-stream.geojson"]
+no_salt_buffer_m = [0.0, 8.0]
 
 [race]
 # race day of the invented demo: course inspection, then two runs of a giant slalom

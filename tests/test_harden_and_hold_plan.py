@@ -94,7 +94,8 @@ def test_bad_schedule_is_one_line_and_exit_2(tmp_path, race, words):
         'sun = "', f'sun = "{ROOT / "sample-geodata"}/').replace('dem = "', f'dem = "{ROOT / "sample-geodata"}/')
     body = body.replace('observations = "', f'observations = "{ROOT / "sample-geodata"}/').replace(
         'forecast = "', f'forecast = "{ROOT / "sample-geodata"}/').replace(
-        'centreline = "', f'centreline = "{ROOT / "sample-geodata"}/')
+        'centreline = "', f'centreline = "{ROOT / "sample-geodata"}/').replace(
+        '"no-salt-', f'"{ROOT / "sample-geodata"}/no-salt-')
     plan.write_text(body, encoding="utf-8")
     res = CliRunner().invoke(main, ["plan", str(plan), "--out", str(tmp_path / "out")])
     assert res.exit_code == 2, res.output

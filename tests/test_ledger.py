@@ -176,6 +176,7 @@ def _demo_plan(tmp_path: Path, ledger_table: str) -> Path:
     body = PLAN.read_text(encoding="utf-8")
     for key in ("course", "sun", "dem", "observations", "forecast", "centreline"):
         body = body.replace(f'{key} = "', f'{key} = "{ROOT / "sample-geodata"}/')
+    body = body.replace('"no-salt-', f'"{ROOT / "sample-geodata"}/no-salt-')
     plan = tmp_path / "plan.toml"
     plan.write_text(body + "\n[ledger]\n" + ledger_table, encoding="utf-8")
     return plan

@@ -395,8 +395,49 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
                                  fix="give points with a 'name' attribute")
             return tuple((str(n), float(pt.x), float(pt.y)) for n, pt in zip(g[name_col], g.geometry, strict=True))
         markers = attempt(read_markers) or ()
+    no_salt: list = []
+    for k, path in enumerate(ins.no_salt):
+        buf = float(ins.no_salt_buffer_m[k]) if k < len(ins.no_salt_buffer_m) else 0.0
+        got = attempt(lambda path=path, buf=buf: _read_no_salt(path, buf, crs))
+        if got is not None:
+            no_salt.append(got)
+        sources[f"no_salt_{k + 1}"] = f"{path} (buffer {buf:g} m)"
     if problems:
         raise ProblemList(problems) if (collect or len(problems) > 1) else problems[0]
     return LoadedInputs(course=geom, course_name=course.name, crs=crs, sun=sun, dem=dem, observations=obs,
                         forecast=fc, centreline=centre, markers=markers, catalogue=catalogue,
-                        notes=tuple(notes), sources=sources)
+                        notes=tuple(notes), sources=sources, no_salt=tuple(no_salt))
+
+
+def _read_no_salt(path: Path, buffer_m: float, crs):
+    """One no-salt entry: (name, polygon in the working CRS) from polygons, lines or points plus a buffer."""
+    import shapely
+
+    from courseplan.io.course import read_layers
+
+    p = Path(path)
+    from courseplan.io.files import check_readable
+
+    check_readable(p, "no-salt")
+    layers = read_layers(p, "no-salt area")
+    parts, name = [], None
+    for _, g in layers:
+        if g.crs is None:
+            raise CRSError("the no-salt file has no CRS", where=str(p), fix="save it with a CRS")
+        g = g.to_crs(crs)
+        col = next((c for c in g.columns if str(c).lower() in ("name", "label")), None)
+        if col is not None and name is None and len(g):
+            name = str(g[col].iloc[0])
+        for geom in g.geometry:
+            if geom is None or geom.is_empty:
+                continue
+            if geom.geom_type in ("Polygon", "MultiPolygon"):
+                parts.append(shapely.make_valid(geom).buffer(buffer_m) if buffer_m else shapely.make_valid(geom))
+            elif buffer_m > 0:
+                parts.append(geom.buffer(buffer_m))
+            else:
+                raise InputError(f"the no-salt file holds {geom.geom_type.lower()}s but no buffer is given",
+                                 where=str(p), fix="give its width in [inputs] no_salt_buffer_m, e.g. 10")
+    if not parts:
+        raise InputError("the no-salt file holds no geometry", where=str(p), fix="give polygons, lines or points")
+    return name or p.stem, shapely.union_all(parts)

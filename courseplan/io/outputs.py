@@ -162,6 +162,9 @@ def write_gpkg(path: Path, result) -> None:
         obs = result.observations.copy()
         obs["time"] = [("" if pd.isna(v) else pd.Timestamp(v).isoformat()) for v in obs["time"]]
         _gpkg_ready(obs).to_file(path, layer="observations", driver="GPKG", engine="pyogrio")
+    no_salt = getattr(result, "no_salt", None)
+    if no_salt is not None and len(no_salt):
+        _gpkg_ready(no_salt).to_file(path, layer="no_salt", driver="GPKG", engine="pyogrio")
     depots = getattr(result.logistics, "depots", None)
     if depots is not None and len(depots):
         _gpkg_ready(depots).to_file(path, layer="depots", driver="GPKG", engine="pyogrio")
@@ -208,7 +211,8 @@ def write_map(path: Path, result, issue: str = "") -> None:
                            agent_label=result.agent.label, cautions=_leading(result),
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
-                           units={c.name: unit(c.name) for c in ALL})
+                           units={c.name: unit(c.name) for c in ALL},
+                           no_salt=getattr(result, "no_salt", None))
     write_text_atomic(path, html, what="map")
 
 
@@ -255,7 +259,8 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
                   cautions=_leading(result), issue=issue)
         write_order_pdf(tmp / "order.pdf", result.logistics, **kw)
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw,
-                        marks={"Start": tuple(result.start_xy), "Finish": tuple(result.finish_xy)})
+                        marks={"Start": tuple(result.start_xy), "Finish": tuple(result.finish_xy)},
+                        no_salt=None if getattr(result, "no_salt", None) is None else list(result.no_salt.geometry))
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
                           "this folder\n", what="output marker")
         for f in tmp.iterdir():  # as a plain mkdir/open would make them under the umask (0755/0644)

@@ -68,6 +68,7 @@ h2{font-size:13px;margin:12px 0 4px;color:#4a504b}
 .pop td.v{overflow-wrap:anywhere}
 .leaflet-popup-content{max-width:calc(100vw - 80px)}
 .sw.hatch{background:repeating-linear-gradient(45deg,#4d524c 0 2px,#eef0ea 2px 5px);border-color:#2b2f2a}
+.sw.nosalt{background:repeating-linear-gradient(45deg,#9b1c1c 0 1.5px,#fff 1.5px 4px),repeating-linear-gradient(-45deg,#9b1c1c 0 1.5px,transparent 1.5px 4px);border-color:#9b1c1c}
 .pop h4{font-size:11px;margin:6px 0 2px;text-transform:uppercase;color:#4a504b}
 .pop table{border-collapse:collapse;font-size:12px}
 .pop td{padding:0 6px 0 0;vertical-align:top}
@@ -157,6 +158,14 @@ if (D.crews){
       {permanent:true, direction:"center", className:"lbl"});}
   });
   crews.addTo(map); overlays["Crews"] = crews;
+}
+if (D.nosalt){
+  var nos = L.geoJSON(D.nosalt, {interactive:true,
+    style:function(){return {color:"#9b1c1c", weight:1.6, fillColor:"url(#cp-nosalt)", fillOpacity:0.95};},
+    onEachFeature:function(f, layer){layer.bindTooltip(el("span",null,"No salt: "+f.properties.name+" ("+
+      f.properties.area+")"), {sticky:true, className:"lbl"});}
+  });
+  nos.addTo(map); overlays["No-salt areas"] = nos;
 }
 if (D.obs){
   var obs = L.geoJSON(D.obs, {

@@ -26,12 +26,12 @@ FONT, FONT_BOLD, FONT_ITALIC = _register_fonts()
 
 def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float], width: float,
                 height: float, *, detail: bool, view_of: tuple[float, float, float, float] | None = None,
-                marks: dict[str, tuple[float, float]] | None = None
+                marks: dict[str, tuple[float, float]] | None = None, no_salt: Any = None
                 ) -> tuple[Any, tuple[float, float, float, float]]:
     """Draw a vector map: course outline, treated zones (grey), the crew's zones (hatched), depot.
 
     *marks* names points to draw as a black ring with their name (the course's start and finish);
-    those outside the view are left out.
+    those outside the view are left out.  *no_salt* polygons are cross-hatched and outlined dashed.
     """
     import shapely
     from reportlab.graphics.shapes import Drawing, Group, Rect, String
@@ -68,6 +68,11 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
     for geom in others.geometry:
         _add_polys(g, tf(geom), fill=colors.Color(0.86, 0.86, 0.86), stroke=colors.Color(0.45, 0.45, 0.45),
                    width=0.3)
+    for geom in (no_salt if no_salt is not None else []):
+        t = tf(geom)
+        _add_polys(g, t, fill=colors.white, stroke=colors.black, width=0.6)
+        _add_hatch(g, t, spacing=3.0)
+        _add_hatch(g, shapely.transform(t, lambda xy: xy * [-1, 1]), spacing=3.0, mirror=True)
     for geom in mine.geometry:
         t = tf(geom)
         _add_polys(g, t, fill=colors.Color(0.72, 0.72, 0.72) if not detail else colors.Color(0.8, 0.8, 0.8),
@@ -187,8 +192,9 @@ def _add_polys(g: Any, geom: Any, *, fill: Any, stroke: Any, width: float) -> No
         g.add(path)
 
 
-def _add_hatch(g: Any, geom: Any, spacing: float) -> None:
-    """Diagonal hatching clipped to the polygon (reads without colour)."""
+def _add_hatch(g: Any, geom: Any, spacing: float, mirror: bool = False) -> None:
+    """Diagonal hatching clipped to the polygon (reads without colour); *mirror*: *geom* is mirrored in x
+    and the lines are mirrored back (the other diagonal)."""
     import numpy as np
     import shapely
     from reportlab.graphics.shapes import Line
@@ -205,6 +211,8 @@ def _add_hatch(g: Any, geom: Any, spacing: float) -> None:
             if part.geom_type != "LineString" or part.is_empty:
                 continue
             (a, b), (c, d) = part.coords[0], part.coords[-1]
+            if mirror:
+                a, c = -a, -c
             g.add(Line(a, b, c, d, strokeColor=colors.black, strokeWidth=0.35))
 
 

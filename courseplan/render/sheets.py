@@ -123,7 +123,8 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
 
 def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
               plan_date: str | None, agent_label: str, cautions: list[str] | tuple[str, ...],
-              issue: str = "", marks: dict[str, tuple[float, float]] | None = None) -> bytes:
+              issue: str = "", marks: dict[str, tuple[float, float]] | None = None,
+              no_salt: Any = None) -> bytes:
     """Build the crew sheets, one page per crew (PDF bytes).
 
     Each page: a map of the crew's zones on the course outline (with zone numbers and the depot), an
@@ -165,7 +166,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
         if c.get("work"):
             story.append(KeepInFrame(frame_w, frame_h, _race_day_page(
                 c, cr, course_geom, treated_geoms, plan_name=plan_name, plan_date=plan_date,
-                agent_label=agent_label, cautions=cautions, issue=issue, st=st, marks=marks), mode="shrink"))
+                agent_label=agent_label, cautions=cautions, issue=issue, st=st, marks=marks,
+                no_salt=no_salt), mode="shrink"))
             if n < len(cr["crews"]) - 1:
                 story.append(PageBreak())
             continue
@@ -225,7 +227,7 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
 
 def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, plan_name: str,
                    plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict,
-                   marks: dict[str, tuple[float, float]] | None = None) -> list[Any]:
+                   marks: dict[str, tuple[float, float]] | None = None, no_salt: Any = None) -> list[Any]:
     """One crew's page: crew, depot, map, then the work in order (zone, pass, window, dose, bags, rate)."""
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, Spacer
@@ -235,7 +237,8 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
     mine = treated_geoms.loc[treated_geoms["crew"] == c["crew"]]
     depot = (c["depot_x"], c["depot_y"])
     map_h = max(50.0, 85.0 - 2.5 * max(len(c["work"]) - 10, 0)) * mm
-    detail, _ = map_drawing(course_geom, treated_geoms, mine, depot, frame_w, map_h, detail=True, marks=marks)
+    detail, _ = map_drawing(course_geom, treated_geoms, mine, depot, frame_w, map_h, detail=True, marks=marks,
+                            no_salt=no_salt)
     hand = any(w["handfuls_m2"] is not None for w in c["work"])
     head = ["Zone", "Pass", "Spread from – to", "Dose g/m²", "Bags",
             "Handfuls per m²" if hand else "Spreader kg/min"]
@@ -257,6 +260,8 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
         Spacer(1, 1.5 * mm), detail, Spacer(1, 1.5 * mm),
         _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
         Spacer(1, 1.5 * mm),
+        *([Paragraph("Cross-hatched: <b>no salt</b> (finish area, streams, cables).",
+                     st["small"])] if no_salt is not None and len(no_salt) else []),
         Paragraph(f"Work down the table. Spread the dose shown evenly over the whole width, turn apexes "
                   f"included, no clumps; {rate}. Be off the course by the end of each window: inspection at "
                   f"the first pass's end, the next run at the break's end.", st["body"]),

@@ -32,6 +32,7 @@ from courseplan.errors import GeometryError
 from courseplan.render.assets import PAGE_CSS, PAGE_JS, leaflet_assets
 from courseplan.render.context import SUN_RAMP, ContextImage
 from courseplan.render.layers import (
+    _geom_json,
     crew_layer,
     display_geometry,
     json_for_script,
@@ -107,7 +108,10 @@ def dose_colour(dose: float | None, breaks: tuple[float, ...] | list[float] = DO
 HATCH_SVG = ('<svg width="0" height="0" style="position:absolute" aria-hidden="true" focusable="false">'
              '<defs><pattern id="cp-hatch" patternUnits="userSpaceOnUse" width="7" height="7" '
              'patternTransform="rotate(45)"><rect width="7" height="7" fill="#eef0ea"/>'
-             '<rect width="2.2" height="7" fill="#4d524c"/></pattern></defs></svg>')
+             '<rect width="2.2" height="7" fill="#4d524c"/></pattern>'
+             '<pattern id="cp-nosalt" patternUnits="userSpaceOnUse" width="8" height="8">'
+             '<rect width="8" height="8" fill="#ffffff"/><path d="M0 0L8 8M8 0L0 8" stroke="#9b1c1c" '
+             'stroke-width="1.6"/></pattern></defs></svg>')
 """The hatch that untreated zones are filled with (referenced as ``url(#cp-hatch)`` by the page script)."""
 
 
@@ -116,6 +120,7 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
                     observations: geopandas.GeoDataFrame | None = None,
                     crews: geopandas.GeoDataFrame | None = None, context: ContextImage | None = None,
                     start_xy: Any = None, finish_xy: Any = None, units: dict[str, str] | None = None,
+                    no_salt: geopandas.GeoDataFrame | None = None,
                     tolerance_m: float = DEFAULT_TOLERANCE_M,
                     budget_chars: int = GEOMETRY_BUDGET_CHARS) -> str:
     """Build the offline map page of a plan.
@@ -186,6 +191,11 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
         data["crews"] = crew_layer(crews, geo.crews, CREW_COLOURS)
     if observations is not None and len(observations):
         data["obs"] = observation_layer(observations, units, WETNESS_COLOURS)
+    if no_salt is not None and len(no_salt):
+        ll = no_salt.to_crs(4326)
+        data["nosalt"] = {"type": "FeatureCollection", "features": [
+            {"type": "Feature", "properties": {"name": str(n), "area": f"{a:,.0f} m²"}, "geometry": _geom_json(g)}
+            for n, a, g in zip(ll["name"], ll["area_m2"], ll.geometry, strict=True)]}
     to_ll = Transformer.from_crs(course.crs or zones.crs, "EPSG:4326", always_xy=True)
     for key, xy in (("start", start_xy), ("finish", finish_xy)):
         if xy is not None:
@@ -206,6 +216,8 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
         legend.append(f'<div class="row"><span class="sw" style="background:{c}"></span>'
                       f"{esc(label)} {dose_unit}</div>")
     legend.append('<div class="row"><span class="sw hatch"></span>0: no salt (not treated)</div>')
+    if no_salt is not None and len(no_salt):
+        legend.append('<div class="row"><span class="sw nosalt"></span>no-salt area (plan file)</div>')
     if verdicts:
         legend.append("<h2>Verdict (layer “Zones by verdict”)</h2>")
         for v in verdicts:
