@@ -230,7 +230,8 @@ def write_crews_pdf(path: Path, result, course_geom, **kw) -> Path:
     return write_bytes_atomic(Path(path), crews_pdf(result, course_geom, **kw), what="crew sheets")
 
 
-def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Path]:
+def write_outputs(result, out_dir: Path, *, overwrite: bool = False, summary_extra: dict | None = None,
+                  tables: dict | None = None) -> list[Path]:
     """Write every output of a plan into *out_dir* (all or nothing).
 
     Raises
@@ -252,6 +253,7 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         pl = result.settings.plan
         write_gpkg(tmp / "zones.gpkg", result)
         summary = summary_dict(result)
+        summary.update(summary_extra or {})
         issue = f"plan {summary['plan_version']}, issued {summary['issued_at'][:16].replace('T', ' ')}"
         write_map(tmp / "map.html", result, issue=issue)
         write_text_atomic(tmp / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
@@ -261,6 +263,8 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
         write_crews_pdf(tmp / "crews.pdf", result.logistics, result.course.geometry.iloc[0], **kw,
                         marks={"Start": tuple(result.start_xy), "Finish": tuple(result.finish_xy)},
                         no_salt=None if getattr(result, "no_salt", None) is None else list(result.no_salt.geometry))
+        for name, table in (tables or {}).items():  # a replan's own tables, as CSV beside the outputs
+            write_text_atomic(tmp / f"{name}.csv", table.to_csv(index=False), what=name)
         write_text_atomic(tmp / OUTPUT_MARKER, f"written by courseplan {__version__}; --overwrite may replace "
                           "this folder\n", what="output marker")
         for f in tmp.iterdir():  # as a plain mkdir/open would make them under the umask (0755/0644)
@@ -280,4 +284,4 @@ def write_outputs(result, out_dir: Path, *, overwrite: bool = False) -> list[Pat
             raise OutputError(f"cannot write the outputs ({exc.strerror or exc}); nothing was written",
                               where=str(out_dir), fix="check the free disk space and permissions") from exc
         raise
-    return [out_dir / f for f in FILES]
+    return [out_dir / f for f in FILES] + [out_dir / f"{n}.csv" for n in (tables or {})]

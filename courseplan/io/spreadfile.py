@@ -11,15 +11,13 @@ from __future__ import annotations
 import io
 import json
 import re
-import shutil
-import tempfile
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from courseplan.errors import InputError, ObservationError
-from courseplan.io.files import check_readable, read_text, refuse_existing, sniff_delimiter, write_text_atomic
+from courseplan.io.files import check_readable, read_text, sniff_delimiter
 
 _CLOCK = re.compile(r"\d{1,2}:\d{2}")
 
@@ -127,34 +125,10 @@ def read_previous(folder) -> dict:
 
 def write_replan(result, out_dir, *, extra: dict, tables: dict) -> list[Path]:
     """Write a replan folder, all or nothing: the plan writers' files, *extra* fields in summary.json,
-    and each of *tables* (name → DataFrame) as ``name.csv``; the folder appears only when complete.
-    """
-    from courseplan.errors import OutputError
+    and each of *tables* (name → DataFrame) as ``name.csv`` (:func:`courseplan.io.outputs.write_outputs`)."""
     from courseplan.io.outputs import write_outputs
 
-    out = Path(out_dir)
-    refuse_existing(out, False, kind="folder")
-    parent = out.resolve().parent
-    try:
-        parent.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.replan-", dir=parent))
-    except OSError as exc:
-        raise OutputError(f"cannot create the output folder ({exc.strerror})", where=str(out),
-                          fix="check the path and permissions") from None
-    try:
-        inner = tmp / out.name
-        files = write_outputs(result, inner)
-        summary = json.loads((inner / "summary.json").read_text(encoding="utf-8"))
-        summary.update(extra)
-        write_text_atomic(inner / "summary.json", json.dumps(summary, indent=2, ensure_ascii=False), what="summary")
-        for name, table in tables.items():
-            write_text_atomic(inner / f"{name}.csv", table.to_csv(index=False), what=name)
-            files.append(out / f"{name}.csv")
-        refuse_existing(out, False, kind="folder")
-        inner.rename(out)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
-    return files
+    return write_outputs(result, Path(out_dir), summary_extra=extra, tables=tables)
 
 
 def replan_tables(result, at, sp, hold, seen, bags0, bag_kg: float, crews):
