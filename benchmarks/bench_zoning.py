@@ -4,10 +4,12 @@ For each synthetic raster size, and in one fresh subprocess per variant and repe
 peak RSS, ``resource.getrusage(RUSAGE_SELF).ru_maxrss``, belongs to one run of one variant):
 
 * **plan** — what the plan does for zoning: :func:`courseplan.io.course.read_course` (the course
-  GeoJSON), :func:`courseplan.io.rasters.read_window` (the course bounds plus its 20 m margin) and
+  GeoJSON), :func:`courseplan.io.rasters.read_window` (the course bounds plus its 20 m margin; GDAL
+  decodes the tiles on all cores, ``GDAL_NUM_THREADS``) and
   :func:`courseplan.stages.zoning.zone_course` with ``Zoning()`` defaults, ``window_hours=3.0`` and the
-  ``fraction`` encoding: classify, sieve, polygonise, per-region statistics, distance from the
-  start (Dijkstra on the cell grid, no centreline), clip to the course, merge small pieces, order.
+  ``fraction`` encoding: classify, label and merge small regions, polygonise, per-region statistics,
+  distance from the start (Dijkstra on the cell grid, no centreline), smooth the shared edges
+  (``shapely.coverage_simplify``), clip to the course, merge small pieces and slivers, order.
   Not the full :func:`courseplan.pipeline.run_plan` (no forecast, dosing, order or outputs).
 * **naive** — read the whole raster, classify it into 3 classes, ``rasterio.features.shapes``
   over the whole raster, ``geopandas.clip`` to the course, then ``rasterstats.zonal_stats`` of the
@@ -23,7 +25,7 @@ identical in shape for every size.  Everything is generated deterministically in
 directory.  Times are medians of ``--repeats`` runs of the work after the imports; "base MB" is
 the child's peak RSS after the imports, before any work.
 
-Goals (issue 5): plan peak RSS < 500 MB on the 40 M raster; naive / plan ≥ 5× in time;
+Goals (issues 5 and 18): plan peak RSS < 500 MB on the 40 M raster; naive / plan ≥ 5× in time;
 plan / minimal ≤ 2× in time and in peak memory.
 
 Run::

@@ -1,10 +1,11 @@
 """Zone polygons as a coverage of the course: smooth the shared edges, close gaps, remove overlaps.
 
 The zones come from raster cells, so their shared edges are staircases of cell sides.
-:func:`smooth_edges` simplifies only the shared (inner) edges, topology-preservingly
-(``shapely.coverage_simplify``, Visvalingam–Whyatt on the coverage's edges, GEOS ≥ 3.12), and keeps
-the course outline as it is; :func:`tile_course` then re-clips to the course and hands any gap
-to the zone that borders it most, so the zones tile the course again (no gaps, no overlaps).
+:func:`smooth_coverage` simplifies only the shared (inner) edges of the region polygons,
+topology-preservingly (``shapely.coverage_simplify``), before they are clipped to the course;
+:func:`ensure_tiling` checks the result by its areas, and :func:`tile_course` re-clips to the
+course and hands any gap to the zone that borders it most when the check fails (no gaps, no
+overlaps).  :func:`thin_test` finds slivers by their largest inscribed circle.
 """
 
 from __future__ import annotations
@@ -61,57 +62,36 @@ def tile_course(geoms: list[BaseGeometry], course: BaseGeometry) -> list[BaseGeo
     return out
 
 
-def noded_faces(geoms: list[BaseGeometry]) -> tuple[np.ndarray, np.ndarray]:
-    """The zones cut into faces along every zone boundary, and each face's zone.
+def smooth_coverage(polys: np.ndarray, tolerance: float) -> tuple[np.ndarray, bool]:
+    """Simplify the shared edges of a coverage by about *tolerance* [m], its outer boundary kept.
 
-    Zones clipped and merged one by one are not quite a coverage: two zones may meet with vertices
-    1e-10 m apart, or one has a vertex where its neighbour's edge runs straight through (a
-    T-junction).  Noding all boundaries together (``shapely.union_all``) and polygonising them
-    (``shapely.polygonize``) gives faces that are edge-matched by construction; a face belongs to
-    the zone its interior point lies in (faces in no zone — holes of the course, slits — are dropped).
+    ``shapely.coverage_simplify`` (Visvalingam–Whyatt on the coverage's edges, GEOS ≥ 3.12,
+    ``simplify_boundary=False``) moves every shared edge once for both polygons, so they stay
+    edge-matched: no gaps, no overlaps.  Polygons traced from one raster
+    (``rasterio.features.shapes``) are such a coverage.  Returns the polygons and whether they
+    were simplified: when a result is invalid or empty, the input is returned as it is.
     """
-    arr = np.array(geoms, dtype=object)
-    lines = shapely.union_all(shapely.boundary(arr))
-    faces = shapely.get_parts(shapely.polygonize(shapely.get_parts(lines)))
-    if faces.size == 0:
-        return faces, np.zeros(0, dtype=np.int64)
-    pts = shapely.point_on_surface(faces)
-    hit_pt, hit_zone = shapely.STRtree(arr).query(pts, predicate="within")
-    owner = np.full(faces.size, -1, dtype=np.int64)
-    owner[hit_pt[::-1]] = hit_zone[::-1]  # first zone wins on a (degenerate) double hit
-    keep = owner >= 0
-    return faces[keep], owner[keep]
+    if polys.size < 2 or tolerance <= 0:
+        return polys, False
+    simp = shapely.coverage_simplify(polys, tolerance, simplify_boundary=False)
+    if shapely.is_empty(simp).any() or (~shapely.is_valid(simp)).any():
+        return polys, False
+    return simp, True
 
 
-def smooth_edges(geoms: list[BaseGeometry], course: BaseGeometry, tolerance: float
-                 ) -> tuple[list[BaseGeometry], bool]:
-    """Simplify the zones' shared edges by about *tolerance* [m], keep the course outline, then
-    :func:`tile_course`.
+def ensure_tiling(geoms: list[BaseGeometry], course: BaseGeometry, rel_tol: float = 1e-9
+                  ) -> list[BaseGeometry]:
+    """The zones as they are when their areas sum to the course area (within *rel_tol*), else
+    :func:`tile_course` of them.
 
-    The zones are first cut into edge-matched faces (:func:`noded_faces`), the faces simplified as
-    one coverage (``shapely.coverage_simplify`` with ``simplify_boundary=False``), and each zone
-    put together again from its faces (``shapely.coverage_union_all``).  Returns the zones and
-    whether they were smoothed: when the simplification yields an invalid or empty face, or a zone
-    loses a face, the zones are only re-tiled, not smoothed.
+    Pieces clipped from one coverage and merged by union can neither overlap nor leave a gap, so
+    their areas summing to the course's is the check; any shortfall or excess means a gap or an
+    overlap, and the full re-tiling runs.
     """
-    if len(geoms) < 2 or tolerance <= 0:
-        return tile_course(list(geoms), course), False
-    faces, owner = noded_faces(geoms)
-    smoothed = False
-    out = list(geoms)
-    if faces.size and np.unique(owner).size == len(geoms):
-        simp = shapely.coverage_simplify(faces, tolerance, simplify_boundary=False)
-        if not (shapely.is_empty(simp).any() or (~shapely.is_valid(simp)).any()):
-            order = np.argsort(owner, kind="stable")
-            cuts = np.flatnonzero(np.diff(owner[order])) + 1
-            rebuilt = []
-            for grp in np.split(order, cuts):
-                g = _polygonal(shapely.coverage_union_all(simp[grp]))
-                parts = _parts(g)
-                rebuilt.append(parts[0] if len(parts) == 1 else shapely.multipolygons(parts))
-            if all(g.is_valid and not g.is_empty for g in rebuilt):
-                out, smoothed = rebuilt, True
-    return tile_course(out, course), smoothed
+    total = float(np.sum(shapely.area(np.array(geoms, dtype=object)))) if geoms else 0.0
+    if geoms and abs(course.area - total) <= rel_tol * course.area:
+        return list(geoms)
+    return tile_course(list(geoms), course)
 
 
 def width_m(g: BaseGeometry, tolerance: float = 0.05) -> float:
@@ -134,13 +114,20 @@ def thin_test(course: BaseGeometry, min_width: float):
         return None
     shapely.prepare(course)
     tol = max(0.01, min_width / 100.0)
+    coarse = min_width / 4.0
+
+    def width(g: BaseGeometry) -> float:
+        # GEOS finds the inscribed circle's radius to within its tolerance, from below: a coarse
+        # search that already reaches min_width settles it; only the others are searched finely.
+        w = width_m(g, coarse)
+        return w if w >= min_width else width_m(g, tol)
 
     def thin(g: BaseGeometry) -> bool:
-        w = width_m(g, tol)
+        w = width(g)
         if w >= min_width:
             return False
         x0, y0, x1, y1 = g.bounds
         local = shapely.clip_by_rect(course, x0 - min_width, y0 - min_width, x1 + min_width, y1 + min_width)
-        return w < min(min_width, 0.5 * width_m(local, tol))
+        return w < min(min_width, 0.5 * width(local))
 
     return thin

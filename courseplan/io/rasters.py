@@ -10,6 +10,7 @@ over a DEM's own extent (or some bounds) in a metric CRS.
 from __future__ import annotations
 
 import math
+from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -35,17 +36,32 @@ def raster_crs(path: Path) -> CRS | None:
 
 def open_raster_info(path: Path, what: str) -> dict:
     """CRS, bounds, cell size, band count and nodata of a raster, with clear errors."""
+    with _open_checked(path, what) as (ds, info):
+        del ds
+    return info
+
+
+@contextmanager
+def _open_checked(path: Path, what: str):
+    """Open a raster once: ``(dataset, info)`` where *info* is what :func:`open_raster_info` returns,
+    checked (CRS, north-up, west-to-east) before the caller reads anything."""
     import rasterio
 
     p = check_readable(path, what)
     try:
-        with rasterio.open(p) as ds:
-            info = {"crs": CRS.from_user_input(ds.crs) if ds.crs else None, "bounds": tuple(ds.bounds),
-                    "res": ds.res, "count": ds.count, "nodata": ds.nodata, "shape": (ds.height, ds.width),
-                    "descriptions": ds.descriptions, "units": ds.units, "transform": ds.transform}
+        ds = rasterio.open(p)
     except rasterio.errors.RasterioIOError as exc:
         raise InputError(f"cannot read the {what} raster ({str(exc).splitlines()[0]})", where=str(p),
                          fix="give a GeoTIFF (or another raster GDAL reads)") from None
+    with ds:
+        info = {"crs": CRS.from_user_input(ds.crs) if ds.crs else None, "bounds": tuple(ds.bounds),
+                "res": ds.res, "count": ds.count, "nodata": ds.nodata, "shape": (ds.height, ds.width),
+                "descriptions": ds.descriptions, "units": ds.units, "transform": ds.transform}
+        _check_info(info, p, what)
+        yield ds, info
+
+
+def _check_info(info: dict, p: Path, what: str) -> None:
     if info["crs"] is None:
         raise CRSError(f"the {what} raster has no CRS", where=str(p),
                        fix="assign one with rasterio's rio command, e.g. rio edit-info --crs EPSG:32632 FILE")
@@ -62,7 +78,6 @@ def open_raster_info(path: Path, what: str) -> dict:
     if t.a < 0:
         raise InputError(f"the {what} raster is stored east-to-west (pixel width {t.a:g} < 0)", where=str(p),
                          fix="write it with columns running west to east, e.g. with rasterio's rio command: rio warp IN.tif OUT.tif --dst-crs EPSG:32632")
-    return info
 
 
 #: Vertical units of a DEM band (its unit type, as `rio info` shows it) and their size in metres.
@@ -128,11 +143,20 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
         When the raster does not overlap the bounds (the message gives both extents and CRSs).
     """
     import rasterio
+
+    # GDAL_NUM_THREADS: GeoTIFF decodes a compressed window's tiles on all cores (GDAL ≥ 3.6).
+    with rasterio.Env(GDAL_NUM_THREADS="ALL_CPUS"), _open_checked(path, what) as (ds, info):
+        return _read_window(ds, info, path, bounds, work_crs, what=what, band=band, margin_m=margin_m,
+                            resolution_m=resolution_m)
+
+
+def _read_window(ds, info: dict, path: Path, bounds, work_crs: CRS, *, what: str, band: int, margin_m: float,
+                 resolution_m: float | None) -> Grid:
+    import rasterio
     from rasterio.enums import MaskFlags, Resampling
     from rasterio.warp import reproject
     from rasterio.windows import from_bounds
 
-    info = open_raster_info(path, what)
     if band > info["count"]:
         raise InputError(f"the {what} raster has {info['count']} band(s), band {band} was asked for",
                          where=str(path), fix="choose an existing band")
@@ -154,20 +178,19 @@ def read_window(path: Path, bounds: tuple[float, float, float, float], work_crs:
     # A raster that covers only part of the course is read beyond its edge (NaN there), so that the
     # uncovered share of the course is counted as missing data instead of silently cut off.
     partial = same and not (rb[0] <= minx and rb[1] <= miny and maxx <= rb[2] and maxy <= rb[3])
-    with rasterio.open(path) as ds:
-        win = from_bounds(*want_r, transform=ds.transform)
-        win = win.round_offsets(op="floor").round_lengths(op="ceil")
-        if not partial:
-            win = win.intersection(rasterio.windows.Window(0, 0, ds.width, ds.height))
-        wtransform = ds.window_transform(win)
-        flags = set(ds.mask_flag_enums[band - 1])
-        if partial or flags & {MaskFlags.per_dataset, MaskFlags.alpha}:
-            # Beyond the edge, or a mask band / alpha: let GDAL say which cells are valid.
-            arr = ds.read(band, window=win, masked=True, boundless=partial).astype(np.float32).filled(np.nan)
-        else:
-            arr = ds.read(band, window=win, out_dtype="float32")
-        if ds.nodata is not None and not np.isnan(ds.nodata):
-            arr[arr == np.float32(ds.nodata)] = np.nan
+    win = from_bounds(*want_r, transform=ds.transform)
+    win = win.round_offsets(op="floor").round_lengths(op="ceil")
+    if not partial:
+        win = win.intersection(rasterio.windows.Window(0, 0, ds.width, ds.height))
+    wtransform = ds.window_transform(win)
+    flags = set(ds.mask_flag_enums[band - 1])
+    if partial or flags & {MaskFlags.per_dataset, MaskFlags.alpha}:
+        # Beyond the edge, or a mask band / alpha: let GDAL say which cells are valid.
+        arr = ds.read(band, window=win, masked=True, boundless=partial).astype(np.float32).filled(np.nan)
+    else:
+        arr = ds.read(band, window=win, out_dtype="float32")
+    if ds.nodata is not None and not np.isnan(ds.nodata):
+        arr[arr == np.float32(ds.nodata)] = np.nan
     if what == "DEM":
         factor, _unit = dem_unit_factor(info, band, str(path))
         if factor != 1.0:

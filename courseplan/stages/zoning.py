@@ -6,15 +6,18 @@ or between named markers).  Course first: every step works on the raster window 
 only.  Steps:
 
 1. classify the cells of the window that touch the course (exposure × slope × section);
-2. remove speckle below an eighth of the minimum zone area (``rasterio.features.sieve``);
-3. polygonise the class raster (``rasterio.features.shapes``) and take per-region statistics in one
-   pass over the window (``numpy.bincount`` on the region raster);
-4. clip the regions to the exact course polygon, so that zone areas sum to the course area;
-5. merge pieces below the minimum area, and slivers narrower than the minimum width, into the most
+2. label the connected regions and merge those below the minimum area into the most similar
+   neighbour, on the raster (a noisy raster with more than :data:`SPECKLE_REGIONS` regions is
+   sieved first, ``rasterio.features.sieve``);
+3. polygonise the region raster (``rasterio.features.shapes``) and take per-region statistics in
+   one pass over the window (``numpy.bincount`` on the region raster);
+4. smooth the regions' shared edges by about one cell (``shapely.coverage_simplify``: the region
+   polygons come from one raster, so they are an edge-matched coverage);
+5. clip the smoothed regions to the exact course polygon, so that zone areas sum to the course
+   area (a check of the areas confirms the tiling, :func:`~courseplan.geo.coverage.ensure_tiling`);
+6. merge pieces below the minimum area, and slivers narrower than the minimum width, into the most
    similar touching neighbour (same exposure first, then slope class, then section; ties broken by
    the longest shared edge);
-6. smooth the shared zone edges by about one cell (``shapely.coverage_simplify``, the course
-   outline kept) and re-tile the course: no gaps, no overlaps;
 7. number the zones 1 … n in course order (mean distance from the start) and label them
    section number + letter (``2B``).
 
@@ -34,7 +37,7 @@ from shapely.geometry.base import BaseGeometry
 from courseplan.columns import check_stage
 from courseplan.errors import InputError, OverlapError
 from courseplan.geo.chainage import cell_xy, distance_of_cells
-from courseplan.geo.coverage import smooth_edges, thin_test
+from courseplan.geo.coverage import ensure_tiling, smooth_coverage, thin_test
 from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.raster import burn, fill_nearest
 from courseplan.geo.regions import (
@@ -46,6 +49,10 @@ from courseplan.geo.regions import (
 )
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
+
+SPECKLE_REGIONS = 2000
+"""Above this many connected regions in the class raster, speckle below an eighth of the minimum zone
+area is sieved out (``rasterio.features.sieve``) before the merge by similarity (a Python loop)."""
 
 ENCODING_RANGE = {"fraction": (0.0, 1.0), "percent": (0.0, 100.0), "wh_m2": (0.0, 20000.0)}
 """Accepted value range of each sun-raster encoding; values outside it are an input error."""
@@ -275,12 +282,15 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     code_t = ((sec_t * n_exp + exp_t) * n_slope + slope_idx_t + 1).astype(np.int32)
     code = np.zeros(touch.shape, dtype=np.int32)
     code[touch] = code_t
+    region, n_reg = label_regions(code)
     speckle = int(max(2, (settings.min_zone_area_m2 / 8.0) / cgrid.cell_area_m2))
-    if speckle > 1 and rows.size > speckle:
+    if n_reg > SPECKLE_REGIONS and rows.size > speckle:
+        # A noisy raster: GDAL's sieve removes the speckle first (into the largest neighbour), so
+        # that the merge by similarity below has a few thousand regions to work on, not 10⁵.
         code_t = sieve(code, size=speckle, mask=touch, connectivity=4)[touch]
         code[:] = 0
         code[touch] = code_t
-    region, n_reg = label_regions(code)
+        region, n_reg = label_regions(code)
     region, n_reg = merge_small_regions(region, n_reg, code, touch, cgrid, settings.min_zone_area_m2,
                                          n_exp, n_slope)
     region_t = region[touch]
@@ -307,14 +317,18 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     else:
         r_aspect = np.full(nreg, np.nan)
 
-    # One polygon per region (each region is 4-connected), clipped to the exact course.
+    # One polygon per region (each region is 4-connected).  The region polygons are a coverage
+    # (edge-matched, from one raster): smooth their shared edges as one, then clip to the exact course.
     polys: dict[int, BaseGeometry] = {}
     for gj, val in shapes(region, mask=region > 0, connectivity=4, transform=ct):
         r = int(val)
         g = geometry_from_geojson(gj)
         polys[r] = shapely.union(polys[r], g) if r in polys else g
     reg_ids = sorted(polys)
-    clipped = clip_to(np.array([polys[r] for r in reg_ids], dtype=object), inp.course)
+    raw, smoothed = smooth_coverage(np.array([polys[r] for r in reg_ids], dtype=object), max(cgrid.cell_size))
+    if len(reg_ids) > 1 and not smoothed:
+        notes.append("zone edges left as raster steps: the zones were not a clean coverage to simplify")
+    clipped = clip_to(raw, inp.course)
     pieces = []
     for r, g in zip(reg_ids, clipped, strict=True):
         for part in polygon_parts(g):
@@ -322,13 +336,9 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
     thin = thin_test(inp.course, settings.min_zone_width_m)
     merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope, thin=thin)
-    # Smooth the staircase of cell sides on the shared edges (about one cell), keep the outline,
-    # and re-tile the course (no gaps, no overlaps).
-    smooth, smoothed = smooth_edges([z["geom"] for z in merged], inp.course, max(cgrid.cell_size))
-    for z, g in zip(merged, smooth, strict=True):
+    # Clipping a coverage leaves a tiling of the course; check it (areas), re-tile only if not.
+    for z, g in zip(merged, ensure_tiling([z["geom"] for z in merged], inp.course), strict=True):
         z["geom"] = g
-    if len(merged) > 1 and not smoothed:
-        notes.append("zone edges left as raster steps: the zones were not a clean coverage to simplify")
 
     cols_out: dict[str, list] = {c: [] for c in (
         "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
