@@ -119,6 +119,13 @@ class Zoning:
     min_zone_width_m: float = _f(15.0, "narrower zones (largest inscribed circle; at most half the "
                                        "course width there; 0 = off) merge into a neighbour; [P] common "
                                        "practice, no published source", unit="m", lo=0.0, hi=1000.0)
+    alike_sun_share: float = _f(0.5, "touching zones of one section are one zone when their mean sun "
+                                      "differs by less than this share of the spacing of the exposure "
+                                      "breaks (a class break that only grazes them; 0 = off); [P] "
+                                      "practice, no published source", lo=0.0, hi=1.0)
+    alike_slope_deg: float = _f(10.0, "… and their mean slope by less than this (0 = slope must be the "
+                                      "same class); [P] practice, no published source", unit="°",
+                                lo=0.0, hi=90.0)
     section_length_m: float = _f(250.0, "course sections every this many metres from the start",
                                  unit="m", lo=10.0, hi=1e5)
     start_xy: list[float] | None = _f(None, "start point [x, y] in the course file's CRS (default: "

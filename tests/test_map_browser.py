@@ -128,3 +128,12 @@ def test_untreated_zone_is_drawn_hatched(tmp_path, chromium):
     img = np.asarray(Image.open(chromium.screenshot(path, tmp_path / "u.png")).convert("RGB")).astype(int)
     dark = (np.abs(img - np.array([0x4d, 0x52, 0x4c])).max(axis=2) <= 12).sum()
     assert dark > 3000  # the hatch's dark stripes, not a faint grey fill
+
+
+def test_zone_labels_are_drawn_on_the_map(tmp_path, chromium):
+    # One permanent label per zone, with the zone's number (no label column: the id) as its text.
+    import re
+
+    dom = chromium.dump_dom(_page(tmp_path))
+    labels = re.findall(r'class="[^"]*zlbl[^"]*"[^>]*><span>([^<]*)</span>', dom)
+    assert sorted(labels) == [str(i) for i in range(1, 7)], labels

@@ -400,3 +400,24 @@ def test_print_stylesheet_one_a4_page_without_controls():
         assert hidden in css.split("{display:none!important}")[0]
     assert ".leaflet-control-scale{display:block!important}" in css and "#legend{" in css
     assert 'addEventListener("beforeprint", refit)' in page_css
+
+
+def test_zone_labels_sit_inside_their_zones_and_lead_the_popup_title():
+    # An L-shaped zone, whose centroid (and bounding-box centre) lies outside it: its label point must
+    # be inside, and the label text is the zone's label column.
+    from shapely.geometry import shape
+
+    ell = box(X0, Y0, X0 + 300, Y0 + 40).union(box(X0, Y0, X0 + 40, Y0 + 300))
+    assert not ell.contains(ell.centroid)
+    zones = gpd.GeoDataFrame({"zone_id": [1, 2], "label": ["1A", "1B"], "dose_g_m2": [20.0, 40.0],
+                              "verdict": ["treat", "treat"], "section": ["0–250 m"] * 2},
+                             geometry=[ell, box(X0 + 40, Y0 + 40, X0 + 300, Y0 + 300)], crs=UTM)
+    feats = _data(_page(zones=zones))["zones"]["features"]
+    for f, want in zip(feats, ["1A", "1B"], strict=True):
+        p = f["properties"]
+        assert p["label"] == want
+        lat, lon = p["at"]
+        assert shape(f["geometry"]).buffer(1e-6).contains(Point(lon, lat)), (want, p["at"])
+    assert feats[0]["properties"]["title"] == "Zone 1A (1) · 0–250 m"
+    page = _page(zones=zones)
+    assert 'overlays["Zone labels"]' in page and "zlbl" in page

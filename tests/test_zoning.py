@@ -326,3 +326,56 @@ def test_min_width_is_capped_on_a_narrow_course():
                       Zoning(section_length_m=1000.0, min_zone_area_m2=100.0, min_zone_width_m=15.0),
                       window_hours=3.0)
     assert sorted(res.table["exposure_class"]) == ["full-sun", "shaded"]
+
+
+def _halves(north: float, south: float, **kw):
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(Y > 20, north, south))
+    return zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0), **kw),
+                       Zoning(section_length_m=1000.0, min_zone_area_m2=100.0), window_hours=3.0)
+
+
+def test_a_break_that_only_grazes_the_piste_does_not_split_it_lengthwise():
+    # Sun 0.72 on the northern half, 0.66 on the southern (the 0.70 break between them): 0.06 apart,
+    # less than half the 0.35 spacing of the breaks, so one zone across the whole width; its mean is
+    # (0.72 + 0.66) / 2 = 0.69, part-sun.  With the merge off, two 4000 m² strips along the course.
+    one = _halves(0.72, 0.66)
+    assert one.n_zones == 1 and one.table["exposure_class"] == ["part-sun"]
+    assert one.table["sun_fraction"][0] == pytest.approx(0.69, abs=1e-6)
+    assert one.table["map_area_m2"][0] == pytest.approx(8000.0, rel=1e-9)
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(Y > 20, 0.72, 0.66))
+    off = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=1000.0, min_zone_area_m2=100.0, alike_sun_share=0.0),
+                      window_hours=3.0)
+    assert sorted(off.table["exposure_class"]) == ["full-sun", "part-sun"]
+
+
+def test_a_real_change_of_exposure_across_the_piste_stays_two_zones():
+    # 0.9 against 0.5: 0.4 apart, more than 0.175 (half the break spacing): two zones side by side.
+    two = _halves(0.9, 0.5)
+    assert sorted(two.table["exposure_class"]) == ["full-sun", "part-sun"]
+
+
+def test_slope_classes_merge_only_when_the_slopes_are_close():
+    # Same sun everywhere; the northern half 12°, the southern 18° (the 15° class break between):
+    # 6° apart, under the 10° default, so one zone (mean slope 15°).  12° against 30°: two zones.
+    def run(n_deg, s_deg):
+        course = box(0, 0, 200, 40)
+        sun = strip_grid(fn=lambda X, Y: np.full_like(X, 0.9))
+        slope = strip_grid(fn=lambda X, Y: np.where(Y > 20, n_deg, s_deg))
+        return zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0),
+                                        slope_deg=slope),
+                           Zoning(section_length_m=1000.0, min_zone_area_m2=100.0), window_hours=3.0)
+    close, far = run(12.0, 18.0), run(12.0, 30.0)
+    assert close.n_zones == 1 and close.table["slope_deg"][0] == pytest.approx(15.0, abs=1e-6)
+    assert far.n_zones == 2 and sorted(far.table["slope_class"]) == ["0–15°", "25–90°"]
+
+
+def test_alike_zones_in_different_sections_stay_apart():
+    # Sections of 100 m along the 200 m strip, the same sun: one zone per section, never one zone.
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.where(Y > 20, 0.72, 0.66))
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=100.0, min_zone_area_m2=100.0), window_hours=3.0)
+    assert res.n_zones == 2 and res.table["label"] == ["1A", "2A"]

@@ -228,3 +228,55 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
         else:
             flag.discard(best)
     return [z for z in zones if z["alive"]]
+
+
+
+def merge_alike(zones: list[dict], summary, alike) -> list[dict]:
+    """Merge touching zones that *alike* says are one, closest pair first (merged zones from
+    :func:`merge_small_pieces`, changed in place; the survivors are returned).
+
+    *summary(zone) → tuple* gives what the test compares (for a merged zone, of its whole area);
+    *alike(a, b) → float | None* the distance of two summaries, or None when they stay apart.  After
+    each merge the new zone is compared again with its neighbours, so a chain of small steps never
+    adds up to a big one.  Zones must share an edge, not a point, to merge.
+    """
+    live = [z for z in zones if z.get("alive", True)]
+    if len(live) < 2:
+        return live
+    geoms = [z["geom"] for z in live]
+    tree = shapely.STRtree(geoms)
+    left, right = tree.query(geoms, predicate="intersects")
+    nb: list[set[int]] = [set() for _ in live]
+    for a, b in zip(left.tolist(), right.tolist(), strict=True):
+        if a < b and shapely.intersection(geoms[a].boundary, geoms[b].boundary).length > 0:
+            nb[a].add(b)
+            nb[b].add(a)
+    summ = [summary(z) for z in live]
+    alive = [True] * len(live)
+    while True:
+        best = None
+        for i, js in enumerate(nb):
+            if not alive[i]:
+                continue
+            for j in js:
+                if j > i and alive[j]:
+                    d = alike(summ[i], summ[j])
+                    if d is not None and (best is None or d < best[0]):
+                        best = (d, i, j)
+        if best is None:
+            break
+        _, i, j = best
+        zi, zj = live[i], live[j]
+        zi["geom"] = shapely.union(zi["geom"], zj["geom"])
+        zi["regions"] += zj["regions"]
+        zi["weights"] += zj["weights"]
+        alive[j] = False
+        nb[i] |= nb[j]
+        nb[i] -= {i, j}
+        for k in nb[j]:
+            nb[k].discard(j)
+            if k != i:
+                nb[k].add(i)
+        nb[j] = set()
+        summ[i] = summary(zi)
+    return [z for z, a in zip(live, alive, strict=True) if a]

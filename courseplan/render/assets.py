@@ -75,6 +75,9 @@ h2{font-size:13px;margin:12px 0 4px;color:#4a504b}
 .pop td.k{color:#4a504b;white-space:nowrap}
 .pop .note{white-space:pre-wrap;max-width:260px}
 .lbl{background:rgba(255,255,255,.85);border:1px solid #555;font-weight:600;padding:0 4px}
+.leaflet-tooltip.zlbl{background:none;border:0;box-shadow:none;padding:0;font-weight:700;font-size:12px;
+ color:#111;text-shadow:0 0 2px #fff,0 0 2px #fff,0 0 3px #fff}
+.leaflet-tooltip.zlbl:before{display:none}
 @media (max-width:760px){
  #wrap{flex-direction:column;height:auto}
  #map{flex:none;height:68vh;order:1}
@@ -98,7 +101,7 @@ h2{font-size:13px;margin:12px 0 4px;color:#4a504b}
  .leaflet-control-zoom,.leaflet-control-layers,.leaflet-control-attribution,.maplegend,
  .leaflet-popup-pane{display:none!important}
  .leaflet-control-scale{display:block!important}
- .sw,.dot,.ramp,.lbl{-webkit-print-color-adjust:exact;print-color-adjust:exact}
+ .sw,.dot,.ramp,.lbl,.zlbl{-webkit-print-color-adjust:exact;print-color-adjust:exact}
  #map,#map *{-webkit-print-color-adjust:exact;print-color-adjust:exact}
 }
 """
@@ -143,6 +146,12 @@ function zoneLayer(colourKey, register, hatch){
 }
 var zDose = zoneLayer("c_dose", true, true), zVerdict = zoneLayer("c_verdict", false, false);
 base["Zones by dose"] = zDose; base["Zones by verdict"] = zVerdict; zDose.addTo(map);
+var zlabels = L.layerGroup();
+D.zones.features.forEach(function(f){var p=f.properties; if(!p.at){return;}
+  L.circleMarker(p.at, {radius:0, stroke:false, fill:false, interactive:false})
+    .bindTooltip(el("span",null,p.label), {permanent:true, direction:"center", className:"zlbl"})
+    .addTo(zlabels);});
+zlabels.addTo(map); overlays["Zone labels"] = zlabels;
 var course = L.layerGroup();
 if (D.course){ L.geoJSON(D.course, {interactive:false, style:function(){return {color:"#111", weight:1.3,
   fill:false, dashArray:null};}}).addTo(course); }

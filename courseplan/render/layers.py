@@ -148,6 +148,8 @@ def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
     r = {k: scalar(v) for k, v in row.items()}
     zid = r.get("zone_id")
     title = f"Zone {zid}" if zid is not None else "Zone"
+    if r.get("label") and zid is not None:
+        title = f"Zone {r['label']} ({zid})"
     if r.get("section"):
         title += f" · {r['section']}"
     lines: list[tuple[str, str]] = []
@@ -266,7 +268,9 @@ def zone_properties(rows: list[dict[str, Any]], dose_fills: list[str], verdict_f
     for i, r in enumerate(rows):
         zid = scalar(r.get("zone_id"))
         lead = zone_lead(r)
+        label = scalar(r.get("label"))
         zprops.append({"id": zid if zid is not None else i + 1,
+                       "label": str(label) if label not in (None, "") else str(zid if zid is not None else i + 1),
                        "verdict": str(scalar(r.get("verdict")) or "—"),
                        "title": lead["title"], "lead": lead["lines"], "treated": lead["treated"],
                        "c_dose": dose_fills[i],
@@ -314,11 +318,17 @@ def display_geometry(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFra
         When a layer has no CRS.
     """
     import geopandas as gpd
+    import shapely
 
     zm = _metric(zones, "zones") if len(zones) else zones
     cm = _metric(course, "course") if len(course) else course
     crm = _metric(crews, "crews") if crews is not None and len(crews) else None
     tol = float(tolerance_m)
+    # Where each zone's label goes: the centre of its largest inscribed circle (inside the zone,
+    # as far from its edges as can be, even on a bend), in longitude/latitude.
+    at = _to_lonlat(shapely.get_point(shapely.maximum_inscribed_circle(zm.geometry.values, 0.5), 0), zm.crs) \
+        if len(zm) else []
+    zone_props = [{**p, "at": [round(g.y, 6), round(g.x, 6)]} for p, g in zip(zone_props, at, strict=True)]
     while True:
         zg = _to_lonlat(simplify_for_display(zm.geometry.values, tol), zm.crs) if len(zm) else []
         cg = _to_lonlat(simplify_for_display(cm.geometry.values, tol), cm.crs) if len(cm) else []

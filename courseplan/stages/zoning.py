@@ -17,7 +17,10 @@ only.  Steps:
    area (a check of the areas confirms the tiling, :func:`~courseplan.geo.coverage.ensure_tiling`);
 6. merge pieces below the minimum area, and slivers narrower than the minimum width, into the most
    similar touching neighbour (same exposure first, then slope class, then section; ties broken by
-   the longest shared edge);
+   the longest shared edge); then touching zones of one section whose mean sun and slope hardly
+   differ (``alike_sun_share``, ``alike_slope_deg``) into one, so that a class break that only grazes
+   the piste does not split it lengthwise: zones run across the full width unless the exposure
+   really changes across it;
 7. number the zones 1 … n in course order (mean distance from the start) and label them
    section number + letter (``2B``).
 
@@ -42,7 +45,9 @@ from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.raster import burn, fill_nearest
 from courseplan.geo.regions import (
     clip_to,
+    code_key,
     label_regions,
+    merge_alike,
     merge_small_pieces,
     merge_small_regions,
     polygon_parts,
@@ -65,6 +70,42 @@ def default_breaks(encoding: str, window_hours: float) -> list[float]:
     if encoding == "percent":
         return [35.0, 70.0]
     return [150.0 * window_hours, 350.0 * window_hours]
+
+
+def _merge_alike(merged: list[dict], settings: Zoning, breaks: list[float], n_exp: int, n_slope: int,
+                 r_sun: np.ndarray, r_slope: np.ndarray | None, sbreaks: list[float] | None) -> list[dict]:
+    """Touching zones of one section whose mean sun (and slope) hardly differ become one zone
+    (``[zoning] alike_sun_share``, ``alike_slope_deg``); its classes follow its new means."""
+    share = settings.alike_sun_share
+    if share <= 0 or len(merged) < 2:
+        return merged
+    spacing = (breaks[-1] - breaks[0]) if len(breaks) > 1 else abs(breaks[0])
+    sun_step = share * spacing
+    slope_step = settings.alike_slope_deg
+
+    def summary(z: dict) -> tuple:
+        regs, w = np.asarray(z["regions"]), np.asarray(z["weights"])
+        sun = float(np.sum(w * np.nan_to_num(r_sun[regs])) / w.sum())
+        slope = float(np.sum(w * np.nan_to_num(r_slope[regs])) / w.sum()) if r_slope is not None else 0.0
+        return code_key(z["code"], n_exp, n_slope)[2], sun, slope, code_key(z["code"], n_exp, n_slope)[1]
+
+    def alike(a: tuple, b: tuple) -> float | None:
+        if a[0] != b[0] or abs(a[1] - b[1]) >= sun_step:
+            return None
+        if r_slope is not None and (abs(a[2] - b[2]) >= slope_step if slope_step > 0 else a[3] != b[3]):
+            return None
+        return abs(a[1] - b[1]) / max(sun_step, 1e-12) + (abs(a[2] - b[2]) / slope_step if slope_step > 0 else 0.0)
+
+    n_before = len(merged)
+    out = merge_alike(merged, summary, alike)
+    if len(out) == n_before:
+        return out
+    for z in out:
+        sec, sun, slope, _ = summary(z)
+        ex = int(np.digitize([sun], breaks)[0])
+        sl = int(np.digitize([slope], sbreaks)[0]) if sbreaks is not None else 0
+        z["code"] = (sec * n_exp + ex) * n_slope + sl + 1
+    return out
 
 
 def zone_labels(section_index: list[int]) -> list[str]:
@@ -336,6 +377,8 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
     thin = thin_test(inp.course, settings.min_zone_width_m)
     merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope, thin=thin)
+    merged = _merge_alike(merged, settings, breaks, n_exp, n_slope, r_sun,
+                          r_slope if slope_t is not None else None, sbreaks if slope_t is not None else None)
     # Clipping a coverage leaves a tiling of the course; check it (areas), re-tile only if not.
     for z, g in zip(merged, ensure_tiling([z["geom"] for z in merged], inp.course), strict=True):
         z["geom"] = g
