@@ -35,7 +35,7 @@ ZONING = _cols(
     ("course_order", "", "position along the course from the start, 1 … n", "int"),
     ("label", "", "short zone label: section number and a letter in course order (2B = second zone "
                   "of section 2)", "str"),
-    ("section", "", "course section label (distance band from the start or marker name)", "str"),
+    ("section", "", "course section label (distance band from the start, or from marker to marker)", "str"),
     ("exposure_class", "", "sun exposure class from the sun/shade raster", "str"),
     ("slope_class", "", "slope class (from the DEM; 'n/a' without one)", "str"),
     ("sun_fraction", "0–1", "mean share of the hold window in direct sun (NaN when the raster holds "

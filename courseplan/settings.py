@@ -119,6 +119,10 @@ class Zoning:
     min_zone_width_m: float = _f(15.0, "narrower zones (largest inscribed circle; at most half the "
                                        "course width there; 0 = off) merge into a neighbour; [P] common "
                                        "practice, no published source", unit="m", lo=0.0, hi=1000.0)
+    max_zone_area_m2: float = _f(10000.0, "larger zones are cut across the course into equal parts, so "
+                                          "that one crew can spread a zone in one window (about 30 min "
+                                          "with push spreaders; 0 = off); [P] practice, no published source",
+                                 unit="m²", lo=0.0, hi=1e7)
     alike_sun_share: float = _f(0.5, "touching zones of one section are one zone when their mean sun "
                                       "differs by less than this share of the spacing of the exposure "
                                       "breaks (a class break that only grazes them; 0 = off); [P] "

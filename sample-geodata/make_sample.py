@@ -389,6 +389,8 @@ dem = "terrain.tif"
 observations = "observations.csv"
 forecast = "forecast.csv"
 centreline = "centreline.geojson"
+# invented gates along the course (placed by hand): sections run from gate to gate
+markers = "gates.geojson"
 # invented no-salt areas (drawn by hand, kept beside this script): the finish area, and a stream
 # crossing the course with 8 m either side
 no_salt = ["no-salt-finish.geojson", "no-salt-stream.geojson"]

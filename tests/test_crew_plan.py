@@ -56,15 +56,15 @@ def test_demo_crews_finish_every_pass_before_its_deadline(demo):
 
 
 def test_fewer_crews_fall_short_with_the_documented_exit_and_the_right_count(tmp_path):
-    res = CliRunner().invoke(main, ["plan", str(PLAN), "--crews", "3", "--out", str(tmp_path / "o"), "--json"])
+    res = CliRunner().invoke(main, ["plan", str(PLAN), "--crews", "2", "--out", str(tmp_path / "o"), "--json"])
     assert res.exit_code == 3, res.output           # docs/logistics.md: exit 3, outputs written
     assert (tmp_path / "o" / "summary.json").exists()
     import json
 
     sf = json.loads((tmp_path / "o" / "summary.json").read_text())["shortfall"]
-    assert sf["crews"] == 3 and sf["crews_needed"] and sf["crews_needed"] > 3
+    assert sf["crews"] == 2 and sf["crews_needed"] and sf["crews_needed"] > 2
     assert _run(crews=sf["crews_needed"]).shortfall is None      # that many crews do it
-    check = CliRunner().invoke(main, ["check", str(PLAN), "--crews", "3"])
+    check = CliRunner().invoke(main, ["check", str(PLAN), "--crews", "2"])
     assert check.exit_code == 3 and "problem:" in check.output
 
 

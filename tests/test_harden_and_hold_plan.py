@@ -95,6 +95,7 @@ def test_bad_schedule_is_one_line_and_exit_2(tmp_path, race, words):
     body = body.replace('observations = "', f'observations = "{ROOT / "sample-geodata"}/').replace(
         'forecast = "', f'forecast = "{ROOT / "sample-geodata"}/').replace(
         'centreline = "', f'centreline = "{ROOT / "sample-geodata"}/').replace(
+        'markers = "', f'markers = "{ROOT / "sample-geodata"}/').replace(
         '"no-salt-', f'"{ROOT / "sample-geodata"}/no-salt-')
     plan.write_text(body, encoding="utf-8")
     res = CliRunner().invoke(main, ["plan", str(plan), "--out", str(tmp_path / "out")])

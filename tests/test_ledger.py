@@ -174,7 +174,7 @@ def test_a_file_that_is_not_a_ledger_is_refused(tmp_path):
 
 def _demo_plan(tmp_path: Path, ledger_table: str) -> Path:
     body = PLAN.read_text(encoding="utf-8")
-    for key in ("course", "sun", "dem", "observations", "forecast", "centreline"):
+    for key in ("course", "sun", "dem", "observations", "forecast", "centreline", "markers"):
         body = body.replace(f'{key} = "', f'{key} = "{ROOT / "sample-geodata"}/')
     body = body.replace('"no-salt-', f'"{ROOT / "sample-geodata"}/no-salt-')
     plan = tmp_path / "plan.toml"

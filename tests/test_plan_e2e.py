@@ -155,7 +155,7 @@ def test_check_lists_every_problem_at_once(tmp_path):
 
 def test_named_markers_split_the_sections(tmp_path):
     # Three named markers placed on the centreline at 1/4, 1/2 and 3/4 of its length: every zone's
-    # section is "start" or one of those names, and they appear in course order.
+    # section runs from one to the next ("start – Gate 12", …, "Schuss – finish"), in course order.
     import geopandas as gpd
 
     line = gpd.read_file(SAMPLE / "centreline.geojson").to_crs("EPSG:32632").geometry.iloc[0]
@@ -167,7 +167,8 @@ def test_named_markers_split_the_sections(tmp_path):
                "--out", str(out)])
     assert res.exit_code in (0, 3), res.output   # 3: the crews fall short; the zones are what is tested
     z = gpd.read_file(out / "zones.gpkg", layer="zones").sort_values("course_order")
-    order = {"start": 0, **{n: i + 1 for i, n in enumerate(names)}}
+    ends = ["start"] + names + ["finish"]
+    order = {f"{a} – {b}": i for i, (a, b) in enumerate(zip(ends[:-1], ends[1:], strict=True))}
     ranks = [order[s] for s in z["section"]]
     assert set(ranks) == {0, 1, 2, 3}
     assert ranks == sorted(ranks)

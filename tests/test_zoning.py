@@ -379,3 +379,25 @@ def test_alike_zones_in_different_sections_stay_apart():
     res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
                       Zoning(section_length_m=100.0, min_zone_area_m2=100.0), window_hours=3.0)
     assert res.n_zones == 2 and res.table["label"] == ["1A", "2A"]
+
+
+def test_a_zone_too_big_for_one_crew_is_cut_across_the_course():
+    # One 200 m × 40 m zone (8000 m²) with max_zone_area_m2 = 3000: ceil(8000 / 3000) = 3 parts of
+    # about 2667 m² each, one after the other from the start, each across the whole 40 m width.
+    course = box(0, 0, 200, 40)
+    sun = strip_grid(fn=lambda X, Y: np.full_like(X, 0.9))
+    res = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=1000.0, min_zone_area_m2=100.0, max_zone_area_m2=3000.0),
+                      window_hours=3.0)
+    assert res.n_zones == 3 and res.table["label"] == ["1A", "1B", "1C"]
+    for g in res.geometries:
+        assert g.area == pytest.approx(8000.0 / 3, rel=0.02)
+        assert g.bounds[1] == pytest.approx(0.0) and g.bounds[3] == pytest.approx(40.0)
+    assert sum(g.area for g in res.geometries) == pytest.approx(8000.0, rel=1e-9)
+    assert _pairwise_overlap(res.geometries) < 1e-6
+    d = res.table["distance_from_start_m"]
+    assert d == sorted(d) and d[0] == pytest.approx(200 / 6, abs=2.0)
+    off = zone_course(ZoningInputs(course=course, sun=sun, encoding="fraction", start_xy=(0.0, 20.0)),
+                      Zoning(section_length_m=1000.0, min_zone_area_m2=100.0, max_zone_area_m2=0.0),
+                      window_hours=3.0)
+    assert off.n_zones == 1

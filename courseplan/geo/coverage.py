@@ -131,3 +131,69 @@ def thin_test(course: BaseGeometry, min_width: float):
         return w < min(min_width, 0.5 * width(local))
 
     return thin
+
+
+def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, dist_t: np.ndarray,
+                      touch: np.ndarray, transform, tolerance: float, cells: dict[str, np.ndarray],
+                      per_region: dict[str, np.ndarray]) -> tuple[list[dict], dict[str, np.ndarray]]:
+    """Cut zones above *max_area* [m²] across the course into ``ceil(area / max_area)`` parts of
+    about equal area, at quantiles of their cells' distance from the start, so every part is a
+    stretch of the course from edge to edge.
+
+    The cut follows the distance field: the window's course cells are banded at the quantiles,
+    the bands polygonised (``rasterio.features.shapes``) and smoothed as one coverage
+    (:func:`~courseplan.geo.coverage.smooth_coverage`, *tolerance* [m]), and the zone intersected
+    with each band, so the parts tile the zone.  Each part gets a new pseudo-region whose values are
+    the means of *cells* (one array per name, a value per course cell in *touch* order) over its own
+    cells, appended to *per_region*; returns the zones and the extended *per_region*.
+    """
+    import math
+
+    from affine import Affine
+    from rasterio.features import shapes
+
+    from courseplan.geo.regions import polygon_parts
+    from courseplan.geo.geometry import geometry_from_geojson
+
+    if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
+        return zones, per_region
+    rows, cols = np.nonzero(touch)
+    extra: dict[str, list[float]] = {k: [] for k in per_region}
+    n_reg = len(next(iter(per_region.values())))
+    out = []
+    for z in zones:
+        if z["geom"].area <= max_area:
+            out.append(z)
+            continue
+        n = int(math.ceil(z["geom"].area / max_area))
+        own = np.isin(region_t, np.asarray(z["regions"]))
+        cuts = np.quantile(dist_t[own], np.arange(1, n) / n)
+        band_t = (np.searchsorted(cuts, dist_t, side="right") + 1).astype(np.int32)
+        r0, r1 = max(int(rows[own].min()) - 3, 0), int(rows[own].max()) + 4
+        c0, c1 = max(int(cols[own].min()) - 3, 0), int(cols[own].max()) + 4
+        band = np.zeros(touch.shape, dtype=np.int32)
+        band[touch] = band_t
+        win = band[r0:r1, c0:c1]
+        polys: dict[int, object] = {}
+        for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
+            g = geometry_from_geojson(gj)
+            polys[int(v)] = shapely.union(polys[int(v)], g) if int(v) in polys else g
+        keys = sorted(polys)
+        smooth, _ = smooth_coverage(np.array([polys[k] for k in keys], dtype=object), tolerance)
+        for k, bp in zip(keys, smooth, strict=True):
+            part = shapely.intersection(z["geom"], bp)
+            parts = polygon_parts(part)
+            if not parts or part.area <= 0:
+                continue
+            geom = parts[0] if len(parts) == 1 else shapely.multipolygons(parts)
+            mine = own & (band_t == k)
+            if mine.any():
+                for name, arr in cells.items():
+                    extra[name].append(float(np.mean(arr[mine])))
+                regions, weights = [n_reg], [geom.area]
+                n_reg += 1
+            else:  # a sliver with no cell centre of its own: the zone's values
+                regions, weights = list(z["regions"]), list(z["weights"])
+            out.append({**z, "geom": geom, "regions": regions, "weights": weights})
+    grown = {k: np.concatenate([v, np.asarray(extra[k], dtype=float)]) for k, v in per_region.items()}
+    return out, grown

@@ -280,3 +280,4 @@ def merge_alike(zones: list[dict], summary, alike) -> list[dict]:
         nb[j] = set()
         summ[i] = summary(zi)
     return [z for z, a in zip(live, alive, strict=True) if a]
+

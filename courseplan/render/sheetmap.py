@@ -79,6 +79,9 @@ def map_drawing(course: Any, treated: Any, mine: Any, depot: tuple[float, float]
                    stroke=colors.black, width=1.1 if detail else 0.5)
         if detail:
             _add_hatch(g, t, spacing=5.0)
+    if detail:  # the edges between the crew's zones on top of every hatching, so each zone reads
+        for geom in mine.geometry:
+            _add_polys(g, tf(geom), fill=None, stroke=colors.black, width=1.1)
     if detail:
         px, py = (depot[0] - vx0) * scale + pad, (depot[1] - vy0) * scale + pad
         taken = [shapely.box(px - 6, py - 5, px + 37, py + 6)]  # the depot symbol and its word

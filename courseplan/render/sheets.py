@@ -260,8 +260,9 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
         Spacer(1, 1.5 * mm), detail, Spacer(1, 1.5 * mm),
         _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
         Spacer(1, 1.5 * mm),
-        *([Paragraph("Cross-hatched: <b>no salt</b> (finish area, streams, cables).",
-                     st["small"])] if no_salt is not None and len(no_salt) else []),
+        Paragraph("Hatched and outlined: <b>your zones</b>; grey: other crews' zones"
+                  + ("; cross-hatched: <b>no salt</b> (finish area, streams, cables)."
+                     if no_salt is not None and len(no_salt) else "."), st["small"]),
         Paragraph(f"Work down the table. Spread the dose shown evenly over the whole width, turn apexes "
                   f"included, no clumps; {rate}. Be off the course by the end of each window: inspection at "
                   f"the first pass's end, the next run at the break's end.", st["body"]),

@@ -40,7 +40,7 @@ from shapely.geometry.base import BaseGeometry
 from courseplan.columns import check_stage
 from courseplan.errors import InputError, OverlapError
 from courseplan.geo.chainage import cell_xy, distance_of_cells
-from courseplan.geo.coverage import ensure_tiling, smooth_coverage, thin_test
+from courseplan.geo.coverage import ensure_tiling, smooth_coverage, split_large_zones, thin_test
 from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.raster import burn, fill_nearest
 from courseplan.geo.regions import (
@@ -315,7 +315,8 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                     for name, x, y in inp.markers)
         mdist = np.array([m[0] for m in mk])
         sec_t = np.searchsorted(mdist, dist_t, side="right")
-        sec_names = ["start"] + [m[1] for m in mk]
+        names = ["start"] + [m[1] for m in mk] + ["finish"]
+        sec_names = [f"{a} – {b}" for a, b in zip(names[:-1], names[1:], strict=True)]
     else:
         sec_t = np.floor(dist_t / L).astype(np.int64)
         sec_names = None
@@ -351,12 +352,9 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         r_sec = mean(1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))))
     else:
         r_slope, r_sec = np.zeros(nreg), np.ones(nreg)
-    if aspect_t is not None:
-        r_as = np.bincount(region_t, weights=np.sin(np.radians(aspect_t)), minlength=nreg)
-        r_ac = np.bincount(region_t, weights=np.cos(np.radians(aspect_t)), minlength=nreg)
-        r_aspect = np.degrees(np.arctan2(r_as, r_ac)) % 360.0
-    else:
-        r_aspect = np.full(nreg, np.nan)
+    a_sin = np.sin(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
+    a_cos = np.cos(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
+    r_asin, r_acos = mean(a_sin), mean(a_cos)
 
     # One polygon per region (each region is 4-connected).  The region polygons are a coverage
     # (edge-matched, from one raster): smooth their shared edges as one, then clip to the exact course.
@@ -379,6 +377,16 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope, thin=thin)
     merged = _merge_alike(merged, settings, breaks, n_exp, n_slope, r_sun,
                           r_slope if slope_t is not None else None, sbreaks if slope_t is not None else None)
+    # Zones too big for one crew in one window: cut across the course (the parts get their own means).
+    cap = max(settings.max_zone_area_m2, 2.0 * settings.min_zone_area_m2) if settings.max_zone_area_m2 > 0 else 0
+    sec_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else np.ones(vt.size)
+    merged, rv = split_large_zones(
+        merged, cap, region_t, dist_t, touch, ct, max(cgrid.cell_size),
+        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else np.zeros(vt.size), "sec": sec_t,
+         "asin": a_sin, "acos": a_cos},
+        {"sun": r_sun, "dist": r_dist, "slope": r_slope, "sec": r_sec, "asin": r_asin, "acos": r_acos})
+    r_sun, r_dist, r_slope, r_sec = rv["sun"], rv["dist"], rv["slope"], rv["sec"]
+    r_aspect = np.degrees(np.arctan2(rv["asin"], rv["acos"])) % 360.0
     # Clipping a coverage leaves a tiling of the course; check it (areas), re-tile only if not.
     for z, g in zip(merged, ensure_tiling([z["geom"] for z in merged], inp.course), strict=True):
         z["geom"] = g
