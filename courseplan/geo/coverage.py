@@ -157,7 +157,9 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
         return zones, per_region
-    rows, cols = np.nonzero(touch)
+    index = np.full(touch.shape, -1, dtype=np.int64)  # cell raster → position in the *_t arrays
+    index[touch] = np.arange(int(touch.sum()))
+    inv = ~transform
     extra: dict[str, list[float]] = {k: [] for k in per_region}
     n_reg = len(next(iter(per_region.values())))
     out = []
@@ -165,15 +167,21 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         if z["geom"].area <= max_area:
             out.append(z)
             continue
+        # Only the zone's bounding box of cells (plus 3), as flat course cells.
+        x0, y0, x1, y1 = z["geom"].bounds
+        ca, ra = inv * (x0, y1)
+        cb, rb = inv * (x1, y0)
+        r0, r1 = max(int(ra) - 3, 0), min(int(rb) + 4, touch.shape[0])
+        c0, c1 = max(int(ca) - 3, 0), min(int(cb) + 4, touch.shape[1])
+        ids = index[r0:r1, c0:c1]
+        inside = ids >= 0
+        sub = ids[inside]
+        own = np.isin(region_t[sub], np.asarray(z["regions"]))
         n = int(math.ceil(z["geom"].area / max_area))
-        own = np.isin(region_t, np.asarray(z["regions"]))
-        cuts = np.quantile(dist_t[own], np.arange(1, n) / n)
-        band_t = (np.searchsorted(cuts, dist_t, side="right") + 1).astype(np.int32)
-        r0, r1 = max(int(rows[own].min()) - 3, 0), int(rows[own].max()) + 4
-        c0, c1 = max(int(cols[own].min()) - 3, 0), int(cols[own].max()) + 4
-        band = np.zeros(touch.shape, dtype=np.int32)
-        band[touch] = band_t
-        win = band[r0:r1, c0:c1]
+        cuts = np.quantile(dist_t[sub][own], np.arange(1, n) / n)
+        band_s = (np.searchsorted(cuts, dist_t[sub], side="right") + 1).astype(np.int32)
+        win = np.zeros(ids.shape, dtype=np.int32)
+        win[inside] = band_s
         polys: dict[int, object] = {}
         for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
             g = geometry_from_geojson(gj)
@@ -181,13 +189,13 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         keys = sorted(polys)
         smooth, _ = smooth_coverage(np.array([polys[k] for k in keys], dtype=object), tolerance)
         for k, bp in zip(keys, smooth, strict=True):
-            part = shapely.intersection(z["geom"], bp)
+            part = shapely.intersection(z["geom"], shapely.clip_by_rect(bp, x0, y0, x1, y1))
             parts = polygon_parts(part)
             if not parts or part.area <= 0:
                 continue
             geom = parts[0] if len(parts) == 1 else shapely.multipolygons(parts)
-            mine = own & (band_t == k)
-            if mine.any():
+            mine = sub[own & (band_s == k)]
+            if mine.size:
                 for name, arr in cells.items():
                     extra[name].append(float(np.mean(arr[mine])))
                 regions, weights = [n_reg], [geom.area]

@@ -248,9 +248,16 @@ def merge_alike(zones: list[dict], summary, alike) -> list[dict]:
     left, right = tree.query(geoms, predicate="intersects")
     nb: list[set[int]] = [set() for _ in live]
     for a, b in zip(left.tolist(), right.tolist(), strict=True):
-        if a < b and shapely.intersection(geoms[a].boundary, geoms[b].boundary).length > 0:
+        if a != b:
             nb[a].add(b)
-            nb[b].add(a)
+    edge: dict[tuple[int, int], bool] = {}
+
+    def share_edge(i: int, j: int) -> bool:  # only asked of alike pairs: most pairs never pay for it
+        key = (i, j)
+        if key not in edge:
+            edge[key] = shapely.intersection(live[i]["geom"].boundary, live[j]["geom"].boundary).length > 0
+        return edge[key]
+
     summ = [summary(z) for z in live]
     alive = [True] * len(live)
     while True:
@@ -261,7 +268,7 @@ def merge_alike(zones: list[dict], summary, alike) -> list[dict]:
             for j in js:
                 if j > i and alive[j]:
                     d = alike(summ[i], summ[j])
-                    if d is not None and (best is None or d < best[0]):
+                    if d is not None and (best is None or d < best[0]) and share_edge(i, j):
                         best = (d, i, j)
         if best is None:
             break
@@ -278,6 +285,8 @@ def merge_alike(zones: list[dict], summary, alike) -> list[dict]:
             if k != i:
                 nb[k].add(i)
         nb[j] = set()
+        for k in nb[i]:  # the merged zone's edges are new
+            edge.pop((min(i, k), max(i, k)), None)
         summ[i] = summary(zi)
     return [z for z, a in zip(live, alive, strict=True) if a]
 
