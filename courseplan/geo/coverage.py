@@ -151,13 +151,14 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
 
     from affine import Affine
     from rasterio.features import shapes
+    from scipy.ndimage import binary_dilation
 
     from courseplan.geo.regions import polygon_parts
     from courseplan.geo.geometry import geometry_from_geojson
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
         return zones, per_region
-    index = np.full(touch.shape, -1, dtype=np.int64)  # cell raster → position in the *_t arrays
+    index = np.full(touch.shape, -1, dtype=np.int32)  # cell raster → position in the *_t arrays
     index[touch] = np.arange(int(touch.sum()))
     inv = ~transform
     extra: dict[str, list[float]] = {k: [] for k in per_region}
@@ -181,7 +182,11 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         cuts = np.quantile(dist_t[sub][own], np.arange(1, n) / n)
         band_s = (np.searchsorted(cuts, dist_t[sub], side="right") + 1).astype(np.int32)
         win = np.zeros(ids.shape, dtype=np.int32)
-        win[inside] = band_s
+        near = np.zeros(ids.shape, dtype=bool)
+        near[inside] = own
+        # The zone lies within about a cell of its own cells: band only those, grown by two cells.
+        near = binary_dilation(near, iterations=2) & inside
+        win[near] = band_s[near[inside]]
         polys: dict[int, object] = {}
         for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
             g = geometry_from_geojson(gj)
