@@ -142,19 +142,40 @@ def _gpkg_ready(gdf):
     return g  # booleans stay bool: pyogrio writes them as GeoPackage BOOLEAN fields
 
 
+def settings_toml(settings) -> str:
+    """The plan's settings as TOML text (``tomlkit``), keys without a value left out (TOML has no null),
+    file paths absolute: read back by :func:`courseplan.io.planfile.read_plan` from anywhere, it gives
+    the same settings.
+    """
+    import tomlkit
+
+    doc = tomlkit.document()
+    doc.add(tomlkit.comment("the settings this plan ran with (courseplan), every default written out"))
+    for table, kv in settings.to_dict().items():
+        t = tomlkit.table()
+        for k, v in kv.items():
+            v = _plain([str(Path(x).resolve()) for x in v] if isinstance(v, (list, tuple)) and v and
+                       all(isinstance(x, Path) for x in v) else str(v.resolve()) if isinstance(v, Path) else v)
+            if v is not None:
+                t.add(k, v)
+        doc.add(table, t)
+    return tomlkit.dumps(doc)
+
+
 def write_gpkg(path: Path, result) -> None:
     """Write ``zones``, ``course``, ``observations``, ``crews`` and the ``plan_settings``, ``plan_totals``,
     ``units`` and ``layer_styles`` tables into one GeoPackage.
 
-    Booleans are GeoPackage BOOLEAN fields, times ISO 8601 text; ``layer_styles`` holds the default
-    style of ``zones`` (fill by ``dose_g_m2`` in fixed classes, labelled by ``label``) as SLD and QML,
-    so the file opens styled in a desktop GIS.
+    Booleans are GeoPackage BOOLEAN fields, times ISO 8601 text; ``plan_file`` holds the settings as
+    TOML text; ``layer_styles`` holds the default style (SLD and QML) of ``zones`` (fill by
+    ``dose_g_m2`` in the map's fixed classes, labelled by ``label``), ``no_salt``, ``crews``,
+    ``depots`` and ``start_finish``, so the file opens styled in a desktop GIS.
     """
     from datetime import UTC, datetime
 
     import pyogrio
 
-    from courseplan.render.gpkg_style import zones_qml, zones_sld
+    from courseplan.render.gpkg_style import LAYER_STYLES, layer_style, zones_qml, zones_sld
 
     _gpkg_ready(result.zones).to_file(path, layer="zones", driver="GPKG", engine="pyogrio")
     result.course.to_file(path, layer="course", driver="GPKG", engine="pyogrio")
@@ -171,11 +192,18 @@ def write_gpkg(path: Path, result) -> None:
     crews = result.logistics.crews
     if crews is not None and len(crews):
         _gpkg_ready(crews).to_file(path, layer="crews", driver="GPKG", engine="pyogrio")
+    import geopandas as gpd
+    from shapely.geometry import Point
+
+    gpd.GeoDataFrame({"name": ["start", "finish"]}, geometry=[Point(result.start_xy), Point(result.finish_xy)],
+                     crs=result.crs).to_file(path, layer="start_finish", driver="GPKG", engine="pyogrio")
     flat = []
     for table, kv in result.settings.to_dict().items():
         for k, v in kv.items():
             flat.append({"table": table, "key": k, "value": json.dumps(_plain(v), ensure_ascii=False)})
     pyogrio.write_dataframe(pd.DataFrame(flat), path, layer="plan_settings", driver="GPKG")
+    pyogrio.write_dataframe(pd.DataFrame({"name": ["plan.toml"], "toml": [settings_toml(result.settings)]}), path,
+                            layer="plan_file", driver="GPKG")
     tot = {k: json.dumps(_plain(v), ensure_ascii=False) for k, v in result.totals().items()}
     pyogrio.write_dataframe(pd.DataFrame({"key": list(tot), "value": list(tot.values())}), path,
                             layer="plan_totals", driver="GPKG")
@@ -184,12 +212,22 @@ def write_gpkg(path: Path, result) -> None:
     units = pd.DataFrame([{"column": c.name, "unit": c.unit, "meaning": c.meaning, "stage": c.stage}
                           for c in ALL_COLUMNS])
     pyogrio.write_dataframe(units, path, layer="units", driver="GPKG")
-    styles = pd.DataFrame([{
-        "f_table_catalog": "", "f_table_schema": "", "f_table_name": "zones",
-        "f_geometry_column": pyogrio.read_info(path, layer="zones")["geometry_name"] or "geom",
-        "styleName": "zones by dose", "styleQML": zones_qml(), "styleSLD": zones_sld(),
-        "useAsDefault": True, "description": "zones filled by dose_g_m2 in fixed classes, labelled by label",
-        "owner": "", "ui": "", "update_time": datetime.now(UTC).isoformat(timespec="seconds")}])
+    now = datetime.now(UTC).isoformat(timespec="seconds")
+    layers = set(pyogrio.list_layers(path)[:, 0])
+
+    def row(layer: str, name: str, qml: str, sld: str, what: str) -> dict:
+        return {"f_table_catalog": "", "f_table_schema": "", "f_table_name": layer,
+                "f_geometry_column": pyogrio.read_info(path, layer=layer)["geometry_name"] or "geom",
+                "styleName": name, "styleQML": qml, "styleSLD": sld, "useAsDefault": True, "description": what,
+                "owner": "", "ui": "", "update_time": now}
+
+    rows = [row("zones", "zones by dose", zones_qml(), zones_sld(),
+                "zones filled by dose_g_m2 in the map's fixed classes, no salt hatched, labelled by label")]
+    for layer, (name, label) in LAYER_STYLES.items():
+        if layer in layers:
+            sld, qml = layer_style(layer)
+            rows.append(row(layer, name, qml, sld, f"{name}, labelled by {label}"))
+    styles = pd.DataFrame(rows)
     pyogrio.write_dataframe(styles, path, layer="layer_styles", driver="GPKG", layer_options={"FID": "id"})
 
 
