@@ -96,7 +96,7 @@ def test_zones_and_no_salt_areas_tile_any_course(poly, areas, seed):
     # no-salt areas cover the course: areas summing to the course area within 0.1 %.
     import numpy as np
     from pyproj import CRS
-    from test_zoning import strip_grid
+    from test_zoning import blob_sun
 
     from courseplan.errors import SettingsError
     from courseplan.io.course import SNAP_M
@@ -110,15 +110,7 @@ def test_zones_and_no_salt_areas_tile_any_course(poly, areas, seed):
     except SettingsError:
         return  # the areas cover the whole course: refused, as the plan refuses it
     assume(rest.area >= 50)
-    rng = np.random.default_rng(seed)
-    blobs = rng.uniform(0, 1, size=(6, 6))
-
-    def fn(X, Y):
-        i = np.clip(((X + 30) / 260 * 6).astype(int), 0, 5)
-        j = np.clip(((70 - Y) / 100 * 6).astype(int), 0, 5)
-        return blobs[j, i]
-    sun = strip_grid(cell=2.0, fn=fn, x0=-30.0, y0=70.0, width=260, height=100)
-    res = zone_course(ZoningInputs(course=rest, sun=sun, encoding="fraction"),
+    res = zone_course(ZoningInputs(course=rest, sun=blob_sun(seed), encoding="fraction"),
                       Zoning(section_length_m=60.0, min_zone_area_m2=50.0), window_hours=3.0)
     geoms = np.array(res.geometries, dtype=object)
     blocked = shapely.union_all(table.geometry.to_numpy()) if table is not None else shapely.Polygon()

@@ -173,19 +173,23 @@ NEEDLE = Polygon([(126, 30), (119.999999999, 30.00008), (110.8060461173628, 36.7
                   (101.41474403335405, 37.97995989283244), (86.92712758272776, 23.945580037536573)])
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(poly=random_polygons(), seed=st.integers(0, 10_000), min_area=st.floats(20, 600))
-@example(poly=course_as_read(NEEDLE), seed=0, min_area=20.0)
-def test_zone_areas_sum_to_course_area(poly, seed, min_area):
-    # Property: whatever the polygon and the sun pattern, zones tile the course exactly.
-    rng = np.random.default_rng(seed)
-    blobs = rng.uniform(0, 1, size=(6, 6))
+def blob_sun(seed: int) -> Grid:
+    """A random sun pattern of 6 × 6 blocks over the strip grid's 260 m × 100 m (2 m cells)."""
+    blobs = np.random.default_rng(seed).uniform(0, 1, size=(6, 6))
 
     def fn(X, Y):
         i = np.clip(((X + 30) / 260 * 6).astype(int), 0, 5)
         j = np.clip(((70 - Y) / 100 * 6).astype(int), 0, 5)
         return blobs[j, i]
-    sun = strip_grid(cell=2.0, fn=fn, x0=-30.0, y0=70.0, width=260, height=100)
+    return strip_grid(cell=2.0, fn=fn, x0=-30.0, y0=70.0, width=260, height=100)
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(poly=random_polygons(), seed=st.integers(0, 10_000), min_area=st.floats(20, 600))
+@example(poly=course_as_read(NEEDLE), seed=0, min_area=20.0)
+def test_zone_areas_sum_to_course_area(poly, seed, min_area):
+    # Property: whatever the polygon and the sun pattern, zones tile the course exactly.
+    sun = blob_sun(seed)
     if poly.geom_type != "Polygon" or poly.area < 50:
         return
     res = zone_course(ZoningInputs(course=poly, sun=sun, encoding="fraction"),
