@@ -245,11 +245,14 @@ def _pairwise_overlap(geoms) -> float:
 
 @settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(poly=random_polygons(), seed=st.integers(0, 10_000), min_area=st.floats(20, 600),
-       min_width=st.sampled_from([0.0, 6.0, 15.0]))
-@example(poly=course_as_read(NEEDLE), seed=0, min_area=20.0, min_width=15.0)
-def test_smoothed_zones_tile_the_course(poly, seed, min_area, min_width):
-    # Property: after smoothing the shared edges (and merging slivers), the zones still tile the
-    # course: no overlaps, union = course and areas sum to the course area within 0.1 %.
+       min_width=st.sampled_from([0.0, 6.0, 15.0]), max_area=st.sampled_from([0.0, 1500.0, 10_000.0]),
+       alike=st.sampled_from([0.0, 0.5]))
+@example(poly=course_as_read(NEEDLE), seed=0, min_area=20.0, min_width=15.0, max_area=10_000.0, alike=0.5)
+def test_smoothed_zones_tile_the_course(poly, seed, min_area, min_width, max_area, alike):
+    # Property: after smoothing the shared edges, merging slivers and alike neighbours and cutting
+    # big zones across the course, the zones still tile the course: no overlaps, union = course and
+    # areas sum to the course area within 0.1 %; no zone is much above the largest area (the cut is
+    # at quantiles of cell counts, so a part's exact area may differ a little).
     rng = np.random.default_rng(seed)
     centres = rng.uniform([0, -10], [200, 70], size=(5, 2))
     levels = rng.uniform(0, 1, size=5)
@@ -261,7 +264,8 @@ def test_smoothed_zones_tile_the_course(poly, seed, min_area, min_width):
     if poly.geom_type != "Polygon" or poly.area < 50:
         return
     res = zone_course(ZoningInputs(course=poly, sun=sun, encoding="fraction"),
-                      Zoning(section_length_m=60.0, min_zone_area_m2=min_area, min_zone_width_m=min_width),
+                      Zoning(section_length_m=60.0, min_zone_area_m2=min_area, min_zone_width_m=min_width,
+                             max_zone_area_m2=max_area, alike_sun_share=alike),
                       window_hours=3.0)
     geoms = res.geometries
     assert all(g.is_valid and not g.is_empty for g in geoms)
@@ -269,6 +273,9 @@ def test_smoothed_zones_tile_the_course(poly, seed, min_area, min_width):
     assert shapely.union_all(geoms).symmetric_difference(poly).area <= 1e-3 * poly.area
     assert sum(g.area for g in geoms) == pytest.approx(poly.area, rel=1e-3)
     assert res.table["map_area_m2"] == pytest.approx([g.area for g in geoms])
+    if max_area > 0:
+        cap = max(max_area, 2 * min_area)
+        assert max(g.area for g in geoms) <= 1.25 * cap
 
 
 def test_shared_edge_staircase_is_smoothed():
