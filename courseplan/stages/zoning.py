@@ -26,6 +26,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import cached_property
+from types import SimpleNamespace
 
 import numpy as np
 import shapely
@@ -49,6 +50,11 @@ from courseplan.settings import Zoning
 
 ENCODING_RANGE = {"fraction": (0.0, 1.0), "percent": (0.0, 100.0), "wh_m2": (0.0, 20000.0)}
 """Accepted value range of each sun-raster encoding; values outside it are an input error."""
+
+
+_ZONE_COLS = ("exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
+              "raster_irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2",
+              "area_m2")
 
 
 def default_breaks(encoding: str, window_hours: float) -> list[float]:
@@ -173,10 +179,49 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         return _zone_course(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
 
 
-def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
-                 max_uncovered_pct: float) -> ZoningResult:
+def zone_given(inp: ZoningInputs, settings: Zoning, geoms, ids, labels=None, *, window_hours: float,
+               max_uncovered_pct: float = 5.0) -> ZoningResult:
+    """Compute the zoning columns of given zones (a chief's edit) on the cells :func:`zone_course` uses.
+
+    Cells from :func:`courseplan.geo.edits.cells_of_zones`; exposure and slope class from the zone's
+    mean sun and slope, its section the one most of its cells lie in; *ids* and non-empty *labels* kept.
+    """
+    import rasterio
+
+    from courseplan.geo.edits import cells_of_zones
+
+    with rasterio.Env():
+        c = _cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
+    zi, ci = cells_of_zones(list(geoms), c.touch, c.ct)
+    n = len(geoms)
+    cnt = np.bincount(zi, minlength=n).astype(np.float64)
+
+    def mean(a) -> np.ndarray:
+        return np.bincount(zi, weights=np.asarray(a, dtype=np.float64)[ci], minlength=n) / cnt
+
+    has_slope, a = c.slope_t is not None, np.radians(c.aspect_t) if c.aspect_t is not None else None
+    slope = mean(c.slope_t) if has_slope else np.zeros(n)
+    sec_mean = mean(1.0 / np.cos(np.radians(np.clip(c.slope_t, 0, 85)))) if has_slope else np.ones(n)
+    aspect = np.degrees(np.arctan2(mean(np.sin(a)), mean(np.cos(a)))) % 360 if a is not None else \
+        np.full(n, np.nan)
+    sun, dist = mean(c.vt), mean(c.dist_t)
+    exp = np.digitize(sun, c.breaks)
+    sl = np.digitize(slope, list(settings.slope_breaks_deg)) if has_slope else np.zeros(n, int)
+    n_sec = int(np.max(c.sec_t)) + 1
+    sec = np.argmax(np.bincount(zi * n_sec + np.asarray(c.sec_t, dtype=np.int64)[ci],
+                                minlength=n * n_sec).reshape(n, n_sec), axis=1)
+    cols_out: dict[str, list] = {k: [] for k in _ZONE_COLS}
+    for k, g in enumerate(geoms):
+        _row(cols_out, c, inp.encoding, int(exp[k]), int(sl[k]), int(sec[k]), sun=float(sun[k]),
+             slope=float(slope[k]), aspect=float(aspect[k]), dist=float(dist[k]), area=float(g.area),
+             sec_mean=float(sec_mean[k]))
+    return _result(c, cols_out, list(geoms), ids=list(ids), given_labels=list(labels) if labels else None)
+
+
+def _cells(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
+           max_uncovered_pct: float) -> SimpleNamespace:
+    """Step 1: the course's cells of the raster window and what each holds (flat arrays over ``touch``)."""
     from affine import Affine
-    from rasterio.features import shapes, sieve
 
     grid = inp.sun
     notes: list[str] = []
@@ -272,6 +317,21 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         sec_t = np.floor(dist_t / L).astype(np.int64)
         sec_names = None
 
+    return SimpleNamespace(grid=grid, cgrid=cgrid, ct=ct, touch=touch, rows=rows, cols=cols, vt=vt,
+                           exp_t=exp_t, breaks=breaks, labels=labels, n_exp=n_exp, slope_t=slope_t,
+                           slope_idx_t=slope_idx_t, n_slope=n_slope, slope_labels=slope_labels, aspect_t=aspect_t,
+                           dist_t=dist_t, sec_t=sec_t, sec_names=sec_names, L=L, start_xy=start_xy,
+                           finish_xy=finish_xy, uncovered=uncovered, notes=notes)
+
+
+def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
+                 max_uncovered_pct: float) -> ZoningResult:
+    from rasterio.features import shapes, sieve
+
+    c = _cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
+    touch, ct, cgrid, rows, vt, notes, n_exp = c.touch, c.ct, c.cgrid, c.rows, c.vt, c.notes, c.n_exp
+    n_slope, exp_t, slope_t, slope_idx_t, aspect_t = c.n_slope, c.exp_t, c.slope_t, c.slope_idx_t, c.aspect_t
+    dist_t, sec_t = c.dist_t, c.sec_t
     code_t = ((sec_t * n_exp + exp_t) * n_slope + slope_idx_t + 1).astype(np.int32)
     code = np.zeros(touch.shape, dtype=np.int32)
     code[touch] = code_t
@@ -330,9 +390,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     if len(merged) > 1 and not smoothed:
         notes.append("zone edges left as raster steps: the zones were not a clean coverage to simplify")
 
-    cols_out: dict[str, list] = {c: [] for c in (
-        "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
-        "raster_irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2", "area_m2")}
+    cols_out: dict[str, list] = {k: [] for k in _ZONE_COLS}
     geoms = []
     for z in merged:
         regs = np.array(z["regions"])
@@ -342,44 +400,50 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         sl = code0 % n_slope
         ex = (code0 // n_slope) % n_exp
         sc = code0 // (n_slope * n_exp)
-        sun_mean = float(np.sum(w * np.nan_to_num(r_sun[regs])) / wsum)
-        sec_mean = float(np.sum(w * np.nan_to_num(r_sec[regs], nan=1.0)) / wsum)
         asp = r_aspect[regs]
-        if np.isfinite(asp).any():
-            ang = np.radians(np.nan_to_num(asp))
-            aspect_mean = float(np.degrees(np.arctan2(np.sum(w * np.sin(ang)), np.sum(w * np.cos(ang)))) % 360)
-        else:
-            aspect_mean = float("nan")
-        if sec_names is not None:
-            section = sec_names[min(sc, len(sec_names) - 1)]
-        else:
-            section = f"{sc * L:g}–{(sc + 1) * L:g} m"
-        area = float(z["geom"].area)
-        for name, value in (
-                ("exposure_class", labels[ex]), ("exposure_rank", int(ex)), ("slope_class", slope_labels[sl]),
-                ("section", section), ("section_index", int(sc)),
-                ("sun_fraction", sun_mean if inp.encoding == "fraction" else
-                 sun_mean / 100.0 if inp.encoding == "percent" else float("nan")),
-                ("raster_irradiation_wh_m2", sun_mean if inp.encoding == "wh_m2" else float("nan")),
-                ("slope_deg", float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum)),
-                ("aspect_deg", aspect_mean),
-                ("distance_from_start_m", float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum)),
-                ("map_area_m2", area), ("area_m2", area * sec_mean)):
-            cols_out[name].append(value)
+        ang = np.radians(np.nan_to_num(asp))
+        aspect_mean = float(np.degrees(np.arctan2(np.sum(w * np.sin(ang)), np.sum(w * np.cos(ang)))) % 360) \
+            if np.isfinite(asp).any() else float("nan")
+        _row(cols_out, c, inp.encoding, ex, sl, sc, sun=float(np.sum(w * np.nan_to_num(r_sun[regs])) / wsum),
+             slope=float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum), aspect=aspect_mean,
+             dist=float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum), area=float(z["geom"].area),
+             sec_mean=float(np.sum(w * np.nan_to_num(r_sec[regs], nan=1.0)) / wsum))
         geoms.append(z["geom"])
+    return _result(c, cols_out, geoms)
+
+
+def _row(cols_out: dict, c, encoding: str, ex: int, sl: int, sc: int, *, sun: float, slope: float,
+         aspect: float, dist: float, area: float, sec_mean: float) -> None:
+    """Append one zone's zoning columns: class indices, means over its cells, its map area."""
+    section = c.sec_names[min(sc, len(c.sec_names) - 1)] if c.sec_names is not None else \
+        f"{sc * c.L:g}–{(sc + 1) * c.L:g} m"
+    for name, value in (
+            ("exposure_class", c.labels[ex]), ("exposure_rank", int(ex)), ("slope_class", c.slope_labels[sl]),
+            ("section", section), ("section_index", int(sc)),
+            ("sun_fraction", sun if encoding == "fraction" else
+             sun / 100.0 if encoding == "percent" else float("nan")),
+            ("raster_irradiation_wh_m2", sun if encoding == "wh_m2" else float("nan")),
+            ("slope_deg", slope), ("aspect_deg", aspect), ("distance_from_start_m", dist),
+            ("map_area_m2", area), ("area_m2", area * sec_mean)):
+        cols_out[name].append(value)
+
+
+def _result(c, cols_out: dict, geoms: list, ids=None, given_labels=None) -> ZoningResult:
+    """Step 7: course order, ids and labels (the given ones kept), the exposure grid, the result."""
     # Course order: mean distance from the start, then exposure rank (stable).
     order = np.lexsort((np.asarray(cols_out["exposure_rank"], dtype=np.int64),
                         np.asarray(cols_out["distance_from_start_m"], dtype=np.float64))).tolist()
     n = len(order)
-    table: dict[str, list] = {"zone_id": list(range(1, n + 1)), "course_order": list(range(1, n + 1))}
+    table: dict[str, list] = {"zone_id": list(range(1, n + 1)) if ids is None else
+                              [int(ids[i]) for i in order], "course_order": list(range(1, n + 1))}
     table.update({k: [vals[i] for i in order] for k, vals in cols_out.items()})
-    table["label"] = zone_labels(table["section_index"])
-    exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
-    exp_grid[touch] = exp_t
-    exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
+    made = zone_labels(table["section_index"])
+    kept = [None] * n if given_labels is None else [given_labels[i] for i in order]
+    table["label"] = [k if k else m for k, m in zip(kept, made, strict=True)]
+    exp_grid = np.full(c.touch.shape, -1.0, dtype=np.float32)
+    exp_grid[c.touch] = c.exp_t
+    exposure_grid = Grid(values=exp_grid, transform=c.ct, crs=c.grid.crs, source="exposure class index")
     check_stage("zoning", (), table)
-    return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=grid.crs,
-                        start_xy=start_xy, finish_xy=finish_xy, exposure_breaks=tuple(breaks),
-                        uncovered_share=uncovered, notes=tuple(notes), exposure_grid=exposure_grid)
-
-
+    return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=c.grid.crs,
+                        start_xy=c.start_xy, finish_xy=c.finish_xy, exposure_breaks=tuple(c.breaks),
+                        uncovered_share=c.uncovered, notes=tuple(c.notes), exposure_grid=exposure_grid)
