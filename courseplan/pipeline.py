@@ -152,9 +152,9 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     from courseplan.stages.crews import crew_bag_kg
     from courseplan.stages.crews.raceday import assign_crews
     from courseplan.stages.dosing import finish_dosing, prepare_dosing
+    from courseplan.stages.edits import add_edits, kept_note
     from courseplan.stages.sun import plan_sun, zone_irradiation
     from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
-    from courseplan.stages.edits import add_edits, kept_note
     from courseplan.stages.zoning import ZoningInputs, zone_course, zone_given
 
     def step(name: str) -> None:
@@ -182,10 +182,11 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     step("zoning")
     course_z, no_salt, ns_notes = _cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
     notes += ns_notes
-    zin = ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope, aspect_deg=ps.aspect,
-                       elevation_m=ps.elevation, start_xy=_start_in_work(settings, inputs),
+    zin = ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
+                       aspect_deg=ps.aspect, elevation_m=ps.elevation, start_xy=_start_in_work(settings, inputs),
                        centreline=inputs.centreline, markers=inputs.markers)
-    zkw = dict(window_hours=(day1 - day0).total_seconds() / 3600.0, max_uncovered_pct=settings.inputs.max_uncovered_pct)
+    zkw = dict(window_hours=(day1 - day0).total_seconds() / 3600.0,
+               max_uncovered_pct=settings.inputs.max_uncovered_pct)
     if (ez := inputs.zones) is not None:  # the chief's edited zones: kept, everything else computed anew
         fitted, fit_notes = fit_to_course(list(ez.geometries), list(ez.zone_id), course_z, where=ez.source)
         zres = zone_given(zin, settings.zoning, fitted, ez.zone_id, ez.label, **zkw)

@@ -1,6 +1,7 @@
-"""Zone edits that survive a re-run (issue 18, point 3): the chief of course edits the zones layer in a
-GIS, ``courseplan plan … --zones edited.gpkg`` keeps the zones and overrides and computes the rest.
+"""Zone edits that survive a re-run (issue 18, point 3).
 
+The chief of course edits the zones layer in a GIS; ``courseplan plan … --zones edited.gpkg`` keeps the
+zones and overrides and computes the rest.
 The coverage checker is tested on hand-made squares (areas by hand); the round trip on the demo hill.
 """
 
@@ -250,9 +251,11 @@ def _tiny(tmp_path, **cols) -> Path:
 
 
 @pytest.mark.parametrize("cols, words", [
-    ({"edit_agent": ["NaCl", "unobtainium"]}, "zone 2: edit_agent 'unobtainium' is not in the catalogue (known: "),
+    ({"edit_agent": ["NaCl", "unobtainium"]},
+     "zone 2: edit_agent 'unobtainium' is not in the catalogue (known: "),
     ({"edit_dose_g_m2": [-3.0, np.nan]}, "zone 1: edit_dose_g_m2 is -3, a dose cannot be negative"),
-    ({"edit_skip": [True, False], "edit_dose_g_m2": [5.0, np.nan]}, "zone 1: edit_skip and edit_dose_g_m2 are both set"),
+    ({"edit_skip": [True, False], "edit_dose_g_m2": [5.0, np.nan]},
+     "zone 1: edit_skip and edit_dose_g_m2 are both set"),
 ])
 def test_bad_overrides_are_one_line_naming_the_zone(tmp_path, cols, words):
     from courseplan.io.zonefile import read_zones
@@ -293,3 +296,13 @@ def test_plan_file_key_and_the_flag_wins(tmp_path):
     f.write_text('[inputs]\nzones = "edited.gpkg"\n', encoding="utf-8")
     assert build_settings(f).inputs.zones == tmp_path / "edited.gpkg"
     assert build_settings(f, zones=Path("/x/other.gpkg")).inputs.zones == Path("/x/other.gpkg")
+
+
+def test_the_map_and_the_crew_sheets_say_the_dose_was_fixed(trip):
+    from pypdf import PdfReader
+
+    d, _, _, _ = trip
+    assert "fixed by the chief of course" in (d / "kept" / "map.html").read_text(encoding="utf-8")
+    assert "fixed by the chief of course" not in (d / "base" / "map.html").read_text(encoding="utf-8")
+    text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(d / "kept" / "crews.pdf").pages)
+    assert f"{FIXED_G_M2:g} g/m² every pass, fixed by the chief of course" in text

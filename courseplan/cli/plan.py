@@ -26,7 +26,8 @@ def _input_options(f):
         click.option("--forecast", type=click.Path(path_type=Path), help="Hourly forecast CSV."),
         click.option("--centreline", type=click.Path(path_type=Path), help="Course line from start to finish."),
         click.option("--zones", type=click.Path(path_type=Path),
-                     help="Zones edited in a GIS (a plan's zones.gpkg): kept with their overrides instead of zoning."),
+                     help="Zones edited in a GIS (a plan's zones.gpkg): kept, overrides and all, instead of "
+                          "zoning."),
         click.option("--agent", help="Agent from the catalogue (see `courseplan agents`)."),
         click.option("--date", help="Race day, YYYY-MM-DD (default: today)."),
         click.option("--crews", type=int, help="Number of crews."),

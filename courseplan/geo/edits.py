@@ -62,7 +62,7 @@ class EditedZones:
     notes: tuple = field(default=())
 
     def override(self, zone_id: int) -> dict:
-        """The overrides of one zone: ``{"edit_skip", "edit_dose_g_m2", "edit_agent"}`` (None = none)."""
+        """Return the overrides of one zone: ``{"edit_skip", "edit_dose_g_m2", "edit_agent"}`` (None = none)."""
         k = self.zone_id.index(int(zone_id))
         dose = float(self.dose_g_m2[k])
         return {"edit_skip": True if self.skip[k] else None,
@@ -77,7 +77,7 @@ def _ids(ids) -> str:
 
 def fit_to_course(geoms: list[BaseGeometry], ids: list[int], course: BaseGeometry,
                   where: str = "zones") -> tuple[list[BaseGeometry], list[str]]:
-    """The edited zones as a tiling of *course*, or an error naming the zones that do not fit.
+    """Fit the edited zones to a tiling of *course*, or raise an error naming the zones that do not fit.
 
     Parameters
     ----------
@@ -131,21 +131,21 @@ def fit_to_course(geoms: list[BaseGeometry], ids: list[int], course: BaseGeometr
             continue
         if gap.area > SLIVER_M2:
             near = [ids[k] for k in tree.query(gap, predicate="dwithin", distance=0.01).tolist()]
-            problems.append(f"a gap of {gap.area:,.0f} m² " + (f"next to zone{'s' if len(near) > 1 else ''} "
-                                                                f"{_ids(near)}" if near else "touching no zone"))
+            side = f"next to zone{'s' if len(near) > 1 else ''} {_ids(near)}" if near else "touching no zone"
+            problems.append(f"a gap of {gap.area:,.0f} m² {side}")
         else:
             mended, n_mended = mended + float(gap.area), n_mended + 1
     if not problems and mended > SLIVER_SHARE * course.area:
-        problems.append(f"{n_mended} slivers of overlap, gap or outside area add up to {mended:,.1f} m², more "
-                        f"than {SLIVER_SHARE:g} of the course")
+        problems.append(f"{n_mended} slivers of overlap, gap or outside area add up to {mended:,.1f} m², "
+                        f"more than {SLIVER_SHARE:g} of the course")
     if problems:
         shown = problems[:6] + ([f"{len(problems) - 6} more"] if len(problems) > 6 else [])
         raise InputError("the edited zones do not tile the course: " + "; ".join(shown), where=where,
-                         fix="snap the zones to each other and to the course outline (no-salt areas left out) in "
-                             "the GIS, e.g. with topological editing on, and save again")
+                         fix="snap the zones to each other and to the course outline (no-salt areas left "
+                             "out) in the GIS, e.g. with topological editing on, and save again")
     fixed = tile_course(list(g), course)
-    notes = [f"{where}: mended {n_mended} sliver(s) of digitising noise ({mended:,.1f} m² in all): clipped to the "
-             "course or given to the neighbour sharing the longest edge"] if n_mended else []
+    notes = [f"{where}: mended {n_mended} sliver(s) of digitising noise ({mended:,.1f} m² in all): clipped to "
+             "the course or given to the neighbour sharing the longest edge"] if n_mended else []
     return fixed, notes
 
 

@@ -19,8 +19,8 @@ FALSE = {"0", "false", "no", "n", "f", ""}
 
 
 def _empty(v) -> bool:
-    return v is None or (isinstance(v, float) and math.isnan(v)) or (isinstance(v, str) and not v.strip()) or \
-        str(v) in ("<NA>", "NaT", "None", "nan")
+    return v is None or (isinstance(v, float) and math.isnan(v)) or (isinstance(v, str) and not v.strip()) \
+        or str(v) in ("<NA>", "NaT", "None", "nan")
 
 
 def _layer(p: Path) -> str | None:
@@ -38,14 +38,14 @@ def _layer(p: Path) -> str | None:
     if len(polys) == 1:
         return polys[0]
     if not polys:
-        raise InputError(f"the edited zones file holds no polygon layer (layers: {', '.join(names) or 'none'})",
-                         where=str(p), fix="give the file with the zones layer")
+        raise InputError(f"the edited zones file holds no polygon layer (layers: "
+                         f"{', '.join(names) or 'none'})", where=str(p), fix="give the file with the zones layer")
     raise InputError(f"the edited zones file has no layer 'zones' but {len(polys)} polygon layers "
                      f"({', '.join(polys[:12])})", where=str(p), fix="rename the edited layer to zones")
 
 
 def read_zones(path, crs, catalogue: dict | None = None) -> EditedZones:
-    """The edited zones of *path* in *crs*, overrides checked (:class:`~courseplan.geo.edits.EditedZones`).
+    """Read the edited zones of *path* in *crs*, overrides checked (:class:`~courseplan.geo.edits.EditedZones`).
 
     Raises
     ------
@@ -71,7 +71,8 @@ def read_zones(path, crs, catalogue: dict | None = None) -> EditedZones:
     g = g.to_crs(crs).reset_index(drop=True)
     notes: list[str] = []
     ids = _ids(g, where, notes)
-    labels = [("" if _empty(v) else str(v).strip()) for v in (g["label"] if "label" in g.columns else [None] * len(g))]
+    raw_labels = g["label"] if "label" in g.columns else [None] * len(g)
+    labels = [("" if _empty(v) else str(v).strip()) for v in raw_labels]
     known = catalogue if catalogue is not None else builtin_catalogue()
     skip, dose, agent = [], [], []
     for k, zid in enumerate(ids):
@@ -119,13 +120,14 @@ def _flag(v, zid: int, where: str) -> bool:
 
 
 def _ids(g, where: str, notes: list[str]) -> list[int]:
-    """The zone ids kept, or 1 … n in file order (with a note) when they are missing or not unique positive."""
+    """Return the zone ids, or 1 … n in file order (with a note) when missing, repeated or not positive."""
     n = len(g)
     if "zone_id" in g.columns:
         raw = list(g["zone_id"])
         try:
             ids = [int(v) for v in raw]
-            ok = all(float(v) == i for v, i in zip(raw, ids, strict=True)) and min(ids) >= 1 and len(set(ids)) == n
+            ok = all(float(v) == i for v, i in zip(raw, ids, strict=True)) and min(ids) >= 1 \
+                and len(set(ids)) == n
         except (TypeError, ValueError, OverflowError):
             ok = False
         if ok:

@@ -179,7 +179,7 @@ def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather
     new = (rho < ds.min_density_kg_m3) | np.isin(grain, NEW_SNOW_GRAINS)
     blocked = np.select([new, lwc > ds.lwc_max_pct, (ts < 0) & (lwc < ds.lwc_min_pct)],
                         ["new-snow", "slush", "too-cold"], default="").astype(object)
-    blocked[zones.get("edit_skip", pd.Series(False, index=zones.index)).fillna(False).to_numpy(bool)] = "left-out"
+    blocked[zones.get("edit_skip", pd.Series(False, index=zones.index)).to_numpy(bool)] = "left-out"
     k_f, k_f_source = calibrated_refreeze_share(settings)
     kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=k_f,
               brine_exit_temp_c=ds.brine_exit_temp_c, mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit,

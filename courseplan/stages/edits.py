@@ -1,4 +1,4 @@
-"""Edits stage: the chief of course's overrides on the zones (``edit_skip``, ``edit_dose_g_m2``, ``edit_agent``).
+"""Edits stage: the chief of course's overrides (``edit_skip``, ``edit_dose_g_m2``, ``edit_agent``).
 
 Fresh zones get the columns empty (``edit_skip`` false); zones kept from an edited GeoPackage
 (:class:`courseplan.geo.edits.EditedZones`) get their overrides, which the dosing stage reads:
@@ -14,7 +14,7 @@ from courseplan.errors import InputError
 
 
 def add_edits(zones: pd.DataFrame, edited=None, plan_agent: str = "") -> pd.DataFrame:
-    """The zones with the ``edits`` columns: empty, or the overrides of *edited* by ``zone_id``."""
+    """Add the ``edits`` columns to the zones: empty, or the overrides of *edited* by ``zone_id``."""
     n = len(zones)
     skip = np.zeros(n, dtype=bool)  # a real boolean: false = no override
     dose = np.full(n, np.nan)
@@ -29,12 +29,13 @@ def add_edits(zones: pd.DataFrame, edited=None, plan_agent: str = "") -> pd.Data
             ids = [int(z) for z, a in zip(zones["zone_id"], agent, strict=True) if a and a != plan_agent]
             raise InputError(f"edit_agent is not supported yet: zone(s) {', '.join(map(str, ids))} name "
                              f"{', '.join(other)}, the plan doses with {plan_agent}", where=edited.source,
-                             fix="clear edit_agent in those zones, or plan them with --agent in a plan of their own")
+                             fix="clear edit_agent in those zones, or plan them with --agent in a plan of "
+                                 "their own")
     return zones.assign(edit_skip=skip, edit_dose_g_m2=dose, edit_agent=agent)
 
 
 def kept_note(edited, zones: pd.DataFrame) -> str:
-    """What the plan kept from the edited zones, e.g. ``kept 24 edited zones from …: 2 left out (zones 5, 9)``."""
+    """Say what the plan kept, e.g. ``kept 24 edited zones from …: 2 left out (zones 5, 9)``."""
     def ids(mask) -> str:
         return ", ".join(str(int(i)) for i in zones["zone_id"].to_numpy()[mask])
 
