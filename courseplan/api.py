@@ -43,7 +43,11 @@ def plan(settings: PlanSettings | str | Path, out_dir: str | Path, *, overwrite:
         plan_file = Path(settings)
         settings = read_plan(settings)
     out = Path(out_dir)
-    refuse_out_over_inputs(out, input_paths(settings, plan_file))
+    paths = input_paths(settings, plan_file)
+    zones = settings.inputs.zones
+    if zones is not None and Path(zones).resolve() == (out / "zones.gpkg").resolve():
+        paths.pop("edited zones")  # the folder's own zones, edited: read before the folder is replaced
+    refuse_out_over_inputs(out, paths)
     refuse_existing(out, overwrite, kind="folder")
     refuse_foreign_folder(out)
     ledger_file = settings.ledger.file
@@ -66,7 +70,7 @@ def input_paths(settings: PlanSettings, plan_file: Path | None = None) -> dict[s
     ins = settings.inputs
     named = {"course": ins.course, "sun raster": ins.sun, "DEM": ins.dem, "observations": ins.observations,
              "forecast": ins.forecast, "centreline": ins.centreline, "markers": ins.markers,
-             "agents file": ins.agents, "ledger": settings.ledger.file}
+             "agents file": ins.agents, "ledger": settings.ledger.file, "edited zones": ins.zones}
     paths = {k: Path(v) for k, v in named.items() if v is not None}
     for i, p in enumerate([*([plan_file] if plan_file else []), *plan_files_read()]):
         paths[f"plan file{'' if i == 0 else f' {i + 1}'}"] = Path(p)

@@ -51,6 +51,16 @@ ZONING = _cols(
     ("area_m2", "m²", "snow-surface area used for quantities: map area / cos(slope)", "float"),
 )
 
+EDITS = _cols(
+    "edits",
+    ("edit_skip", "", "the chief of course's override: no salt on this zone (empty = no override; set it in "
+                  "the zones layer and plan with --zones)", "bool"),
+    ("edit_dose_g_m2", "g/m²", "the chief of course's override: this dose on every pass instead of the "
+                               "model's (empty = no override)", "float"),
+    ("edit_agent", "", "the chief of course's override: dose this zone with this catalogue agent (empty = "
+                       "the plan's agent)", "str"),
+)
+
 SUN = _cols(
     "sun",
     ("irradiation_wh_m2", "Wh/m²", "irradiation on the zone's surface over the window: the raster's own "
@@ -160,7 +170,7 @@ CREW_LAYER = _cols(
 )
 """Columns of the ``crews`` layer (one row per crew; not part of the zones table)."""
 
-ALL: list[Column] = ZONING + SUN + CONDITIONS + CREWS + DOSING + LOGISTICS
+ALL: list[Column] = ZONING + EDITS + SUN + CONDITIONS + CREWS + DOSING + LOGISTICS
 BY_NAME: dict[str, Column] = {c.name: c for c in ALL}
 
 

@@ -70,6 +70,7 @@ class LoadedInputs:
     centreline: BaseGeometry | None = None
     markers: tuple[tuple[str, float, float], ...] = ()
     no_salt: tuple = ()  # (name, polygon) in the working CRS, cut out of the course before zoning
+    zones: Any = None  # courseplan.geo.edits.EditedZones: the chief's edited zones, kept instead of zoning
     catalogue: dict | None = None
     notes: tuple[str, ...] = field(default=())
     sources: dict = field(default_factory=dict)
@@ -145,14 +146,16 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
 
     from courseplan.agents import get_agent
     from courseplan.calibration import calibration_notes
+    from courseplan.geo.edits import fit_to_course
     from courseplan.schedule import plan_schedule
     from courseplan.stages.conditions import assign_snow, observation_exposure
     from courseplan.stages.crews import crew_bag_kg
     from courseplan.stages.crews.raceday import assign_crews
     from courseplan.stages.dosing import finish_dosing, prepare_dosing
+    from courseplan.stages.edits import add_edits, kept_note
     from courseplan.stages.sun import plan_sun, zone_irradiation
     from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
-    from courseplan.stages.zoning import ZoningInputs, zone_course
+    from courseplan.stages.zoning import ZoningInputs, zone_course, zone_given
 
     def step(name: str) -> None:
         if progress is not None:
@@ -179,15 +182,21 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     step("zoning")
     course_z, no_salt, ns_notes = _cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
     notes += ns_notes
-    zres = zone_course(ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
-                                    aspect_deg=ps.aspect, elevation_m=ps.elevation,
-                                    start_xy=_start_in_work(settings, inputs),
-                                    centreline=inputs.centreline, markers=inputs.markers),
-                       settings.zoning, window_hours=(day1 - day0).total_seconds() / 3600.0,
-                       max_uncovered_pct=settings.inputs.max_uncovered_pct)
-    notes += list(zres.notes)
+    zin = ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
+                       aspect_deg=ps.aspect, elevation_m=ps.elevation, start_xy=_start_in_work(settings, inputs),
+                       centreline=inputs.centreline, markers=inputs.markers)
+    zkw = dict(window_hours=(day1 - day0).total_seconds() / 3600.0,
+               max_uncovered_pct=settings.inputs.max_uncovered_pct)
+    ez = inputs.zones
+    if ez is not None:  # the chief's edited zones: kept, everything else computed anew
+        fitted, fit_notes = fit_to_course(list(ez.geometries), list(ez.zone_id), course_z, where=ez.source)
+        zres = zone_given(zin, settings.zoning, fitted, ez.zone_id, ez.label, **zkw)
+    else:
+        zres = zone_course(zin, settings.zoning, **zkw)
     check_stage("zoning", (), zres.zones.columns)
-    zones, sources = _staged("sun", zres.zones, lambda z: zone_irradiation(z, ps))
+    zones = _staged("edits", zres.zones, lambda z: add_edits(z, ez, agent.name))
+    notes += list(zres.notes) + ([kept_note(ez, zones), *ez.notes, *fit_notes] if ez is not None else [])
+    zones, sources = _staged("sun", zones, lambda z: zone_irradiation(z, ps))
 
     step("conditions")
     obs, obs_exp = observation_exposure(inputs.observations, zres.exposure_grid, settings.zoning.exposure_labels)

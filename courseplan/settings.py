@@ -76,6 +76,9 @@ class Inputs:
                                              "points need one; missing entries are 0)", unit="m",
                                        factory=list)
     agents: Path | None = _f(None, "TOML file adding or overriding catalogue agents")
+    zones: Path | None = _f(None, "zones edited in a desktop GIS (the `zones` layer of a plan's zones.gpkg, "
+                                  "merged, split or reshaped, overrides set): kept instead of zoning; see "
+                                  "docs/zone-edits.md")
     crs: str | None = _f(None, "working metric CRS (default: the sun raster's if metric, else the "
                                "course's if metric, else the local UTM zone)")
 

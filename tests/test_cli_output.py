@@ -67,7 +67,7 @@ def test_plan_summary_fits_80_columns_and_keeps_every_number(plan_80):
 
 
 def test_zones_flag_prints_a_table_within_80_columns(tmp_path):
-    res = invoke(["plan", PLAN, "--out", tmp_path / "o", "--zones"])
+    res = invoke(["plan", PLAN, "--out", tmp_path / "o", "--zone-table"])
     assert res.exit_code == 0, res.output
     text = res.stdout
     assert_narrow(text)
@@ -173,7 +173,7 @@ def test_real_terminal_of_80_columns_and_no_color(tmp_path):
     assert colour.search(raw)  # a terminal gets colour (the note prefixes) ...
     assert_narrow(ANSI.sub("", raw))
     assert "zones —" not in raw
-    raw = _on_pty(["plan", PLAN, "--out", tmp_path / "o2", "--zones"], 80, {"NO_COLOR": "1"})
+    raw = _on_pty(["plan", PLAN, "--out", tmp_path / "o2", "--zone-table"], 80, {"NO_COLOR": "1"})
     assert not colour.search(raw)  # ... but none with NO_COLOR
     plain = ANSI.sub("", raw)
     assert_narrow(plain)

@@ -17,7 +17,7 @@ from courseplan import columns
 from courseplan.errors import ContractError
 
 ROOT = Path(__file__).resolve().parents[1]
-STAGES = ("zoning", "sun", "conditions", "dosing", "logistics")
+STAGES = ("zoning", "edits", "sun", "conditions", "dosing", "logistics")
 
 
 @pytest.fixture(scope="module")

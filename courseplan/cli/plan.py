@@ -25,6 +25,9 @@ def _input_options(f):
         click.option("--observations", type=click.Path(path_type=Path), help="Field observations (CSV/points)."),
         click.option("--forecast", type=click.Path(path_type=Path), help="Hourly forecast CSV."),
         click.option("--centreline", type=click.Path(path_type=Path), help="Course line from start to finish."),
+        click.option("--zones", type=click.Path(path_type=Path),
+                     help="Zones edited in a GIS (a plan's zones.gpkg): kept, overrides and all, instead of "
+                          "zoning."),
         click.option("--agent", help="Agent from the catalogue (see `courseplan agents`)."),
         click.option("--date", help="Race day, YYYY-MM-DD (default: today)."),
         click.option("--crews", type=int, help="Number of crews."),
@@ -38,7 +41,7 @@ def _input_options(f):
 
 def build_settings(plan_file: Path | None, *, course=None, course_feature=None, sun=None, sun_encoding=None,
                    dem=None, observations=None, forecast=None, centreline=None, agent=None, date=None,
-                   crews=None, overrides=(), **_):
+                   crews=None, overrides=(), zones=None, **_):
     """Settings from the plan file (if any), then flags, then ``--set`` overrides."""
     from courseplan.io.planfile import read_plan
     from courseplan.settings import PlanSettings, parse_override, settings_from_mapping
@@ -46,7 +49,8 @@ def build_settings(plan_file: Path | None, *, course=None, course_feature=None, 
     s = read_plan(plan_file) if plan_file else PlanSettings()
     flags = {"inputs": {k: v for k, v in dict(course=course, course_feature=course_feature, sun=sun,
                                               sun_encoding=sun_encoding, dem=dem, observations=observations,
-                                              forecast=forecast, centreline=centreline).items() if v is not None},
+                                              forecast=forecast, centreline=centreline, zones=zones).items()
+                        if v is not None},
              "plan": {k: v for k, v in dict(agent=agent, date=date).items() if v is not None},
              "logistics": {"crews": crews} if crews is not None else {}}
     flags = {k: {kk: (str(vv) if isinstance(vv, Path) else vv) for kk, vv in v.items()} for k, v in flags.items() if v}
@@ -83,7 +87,7 @@ def _with_date(s):
 @click.option("--out", "out_dir", required=True, type=click.Path(path_type=Path), help="Output folder (new).")
 @click.option("--overwrite", is_flag=True, help="Replace an existing output folder.")
 @click.option("--quiet", is_flag=True, help="Print only errors.")
-@click.option("--zones", "show_zones", is_flag=True,
+@click.option("--zone-table", "show_zones", is_flag=True,
               help=f"Also print the per-zone table (shown anyway on terminals of {WIDE_COLUMNS}+ columns).")
 @json_option("Print the plan summary (as in summary.json) as JSON on stdout; messages go to stderr.")
 @guarded

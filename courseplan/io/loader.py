@@ -402,11 +402,17 @@ def load_inputs(settings: PlanSettings, *, collect: bool = False) -> LoadedInput
         if got is not None:
             no_salt.append(got)
         sources[f"no_salt_{k + 1}"] = f"{path} (buffer {buf:g} m)"
+    if ins.zones:  # the chief's edited zones (io/zonefile.py); their fit to the course is checked in the plan
+        from courseplan.io.zonefile import read_zones
+
+        sources["zones"] = str(ins.zones)
+        edited = attempt(lambda: read_zones(ins.zones, crs, catalogue))
     if problems:
         raise ProblemList(problems) if (collect or len(problems) > 1) else problems[0]
     return LoadedInputs(course=geom, course_name=course.name, crs=crs, sun=sun, dem=dem, observations=obs,
                         forecast=fc, centreline=centre, markers=markers, catalogue=catalogue,
-                        notes=tuple(notes), sources=sources, no_salt=tuple(no_salt))
+                        notes=tuple(notes), sources=sources, no_salt=tuple(no_salt),
+                        zones=edited if ins.zones else None)
 
 
 def _read_no_salt(path: Path, buffer_m: float, crs):

@@ -35,7 +35,7 @@ from courseplan.io.files import (
 )
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 """Version of ``summary.json`` (its JSON Schema: ``courseplan/schema/summary.schema.json``)."""
 
 

@@ -138,6 +138,14 @@ def _grams(v: Any) -> str | None:
     return f"{float(v):.0f} g/m²" if isinstance(v, (int, float)) and math.isfinite(float(v)) else None
 
 
+def fixed_dose_text(value: Any) -> str | None:
+    """Return the line shown where a dose is when the chief of course fixed it (``edit_dose_g_m2``), else None."""
+    v = scalar(value)
+    if isinstance(v, (int, float)) and math.isfinite(float(v)):
+        return f"{float(v):g} g/m² every pass, fixed by the chief of course"
+    return None
+
+
 def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
     """What a crew reads first in a zone's popup: a title and a few lines in the crew's words.
 
@@ -163,7 +171,9 @@ def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
             when = f" — spread at {_and(times)}" if times else ""
             lines.append(("Passes", f"{passes}{when}"))
         per_pass = _grams(r.get("max_pass_g_m2"))
-        if per_pass:
+        if fixed_dose_text(r.get("edit_dose_g_m2")):
+            lines.append(("Per pass", fixed_dose_text(r.get("edit_dose_g_m2"))))
+        elif per_pass:
             lines.append(("Per pass", f"up to {per_pass}"))
         hu = r.get("hard_until")
         if hu not in (None, ""):

@@ -149,6 +149,12 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
     from reportlab.lib.units import mm
     from reportlab.platypus import KeepInFrame, PageBreak, Paragraph, Spacer, Table, TableStyle
 
+    from courseplan.render.layers import fixed_dose_text
+
+    zt = result.zones
+    doses = zt.get("edit_dose_g_m2", [None] * len(zt))
+    fixed = {int(i): fixed_dose_text(d) for i, d in zip(zt["zone_id"], doses, strict=True) if fixed_dose_text(d)}
+
     s = result.summary()
     cr = s["crews"]
     st = _styles()
@@ -167,7 +173,7 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
             story.append(KeepInFrame(frame_w, frame_h, _race_day_page(
                 c, cr, course_geom, treated_geoms, plan_name=plan_name, plan_date=plan_date,
                 agent_label=agent_label, cautions=cautions, issue=issue, st=st, marks=marks,
-                no_salt=no_salt), mode="shrink"))
+                no_salt=no_salt, fixed=fixed), mode="shrink"))
             if n < len(cr["crews"]) - 1:
                 story.append(PageBreak())
             continue
@@ -199,7 +205,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
                 "Handfuls /m² per pass", "Advice"]
         body = [[str(z["zone_id"]), escape(z["section"]), num(z["area_m2"], 0), num(z["dose_g_m2"]),
                  num(z["dose_p90_g_m2"]), str(z["passes"]), str(z["bags"]), num(z["handfuls_m2"], 2),
-                 Paragraph(escape(z["advice"]), st["cell"])] for z in c["zones"]]
+                 Paragraph(escape(z["advice"] + (f" Dose: {fixed[z['zone_id']]}." if z["zone_id"] in fixed
+                                                 else "")), st["cell"])] for z in c["zones"]]
         total = ["Total", f"{len(c['zones'])} zones", num(c["area_m2"], 0), f"{num(c['product_kg'])} kg",
                  f"{num(c['product_p90_kg'])} kg", str(c["passes"]) + " max", str(c["bags"]), "", ""]
         page = [
@@ -227,7 +234,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
 
 def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, plan_name: str,
                    plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict,
-                   marks: dict[str, tuple[float, float]] | None = None, no_salt: Any = None) -> list[Any]:
+                   marks: dict[str, tuple[float, float]] | None = None, no_salt: Any = None,
+                   fixed: dict | None = None) -> list[Any]:
     """One crew's page: crew, depot, map, then the work in order (zone, pass, window, dose, bags, rate)."""
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, Spacer
@@ -260,6 +268,8 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
         Spacer(1, 1.5 * mm), detail, Spacer(1, 1.5 * mm),
         _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
         Spacer(1, 1.5 * mm),
+        *[Paragraph(f"<b>Zone {escape(lab)}:</b> {escape(text)}.", st["body"]) for lab, text in dict.fromkeys(
+            (str(w["label"]), fixed[w.get("zone_id")]) for w in c["work"] if w.get("zone_id") in (fixed or {}))],
         Paragraph("Hatched and outlined: <b>your zones</b>; grey: other crews' zones"
                   + ("; cross-hatched: <b>no salt</b> (finish area, streams, cables)."
                      if no_salt is not None and len(no_salt) else "."), st["small"]),

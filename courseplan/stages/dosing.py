@@ -17,7 +17,7 @@ percentiles over the samples; timing, holds and verdicts use the nominal state.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -50,10 +50,12 @@ VERDICTS: dict[str, str] = {
                 "0 °C and wet.",
     "slush": "Soaked snow has lost its structure: drain or groom it and let it firm before salting.",
     "new-snow": "New snow soaks up brine without bonding: compact or remove it before salting.",
+    "left-out": "Left out by the chief of course (edit_skip in the zones layer): no salt here.",
 }
 """Verdict name → one line of advice (the project's own words)."""
 
 TREATED = ("treat", "treat-in-passes", "slush-risk")
+FIXED_FIELDS = ("sub_passes", "hard_from_s", "hard_until_s", "layer_temp_c", "temp_flag", "slush_risk")
 TEMP_TOL_K = 2.0
 """Tolerance of the closed-layer check: the pass's closed-layer temperature within 2 K of T_b."""
 
@@ -177,6 +179,7 @@ def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather
     new = (rho < ds.min_density_kg_m3) | np.isin(grain, NEW_SNOW_GRAINS)
     blocked = np.select([new, lwc > ds.lwc_max_pct, (ts < 0) & (lwc < ds.lwc_min_pct)],
                         ["new-snow", "slush", "too-cold"], default="").astype(object)
+    blocked[zones.get("edit_skip", pd.Series(False, index=zones.index)).to_numpy(bool)] = "left-out"
     k_f, k_f_source = calibrated_refreeze_share(settings)
     kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=k_f,
               brine_exit_temp_c=ds.brine_exit_temp_c, mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit,
@@ -196,8 +199,10 @@ def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
     nom = pass_dose(ctx.agent, ctx.nominal, tt, ctx.lwc, ctx.rho, temp_tol_k=TEMP_TOL_K,
                     with_layer_temp=True, **ctx.kw)
     smp = pass_dose(ctx.agent, ctx.sampled, tt[:, None], ctx.lwc_s, ctx.rho[:, None], **ctx.kw)
-    prod = np.nan_to_num(np.asarray(smp.product_g_m2, dtype=float))
-    wf = np.asarray(nom.water_first, dtype=bool)
+    fixed = np.asarray(ctx.zones.get("edit_dose_g_m2", pd.Series(np.nan, index=ctx.zones.index)), dtype=float)
+    fx = go & np.isfinite(fixed)  # the chief's fixed dose (edits stage): that dose, held as long as it holds
+    prod = np.where(fx[:, None], fixed[:, None], np.nan_to_num(np.asarray(smp.product_g_m2, dtype=float)))
+    wf = np.asarray(nom.water_first, dtype=bool) & ~fx
     use = go & ~wf
     p50 = np.where(use, np.percentile(prod, 50, axis=1), 0.0)
     p90 = np.where(use, np.maximum(np.percentile(prod, 90, axis=1), p50), 0.0)
@@ -207,12 +212,14 @@ def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
     def m(a, fill=np.nan):
         return np.where(use, np.asarray(a, dtype=float), fill)
 
-    return PassResult(spread_at_s=np.where(go, t, np.nan), dose_g_m2=p50, dose_p90_g_m2=p90,
-                      sub_passes=np.where(use, np.asarray(nom.sub_passes), 0).astype(int),
-                      hard_from_s=m(nom.hard_from_s), hard_until_s=m(nom.hard_until_s),
-                      layer_temp_c=m(nom.layer_temp_c), temp_flag=use & np.asarray(nom.temp_flag, dtype=bool),
-                      water_first=go & wf, slush_risk=use & np.asarray(nom.slush_risk, dtype=bool),
-                      energy_j_m2=m(nom.e_k), sample_kg=sample_kg)
+    res = PassResult(spread_at_s=np.where(go, t, np.nan), dose_g_m2=p50, dose_p90_g_m2=p90,
+                     sub_passes=np.where(use, np.asarray(nom.sub_passes), 0).astype(int),
+                     hard_from_s=m(nom.hard_from_s), hard_until_s=m(nom.hard_until_s),
+                     layer_temp_c=m(nom.layer_temp_c), temp_flag=use & np.asarray(nom.temp_flag, dtype=bool),
+                     water_first=go & wf, slush_risk=use & np.asarray(nom.slush_risk, dtype=bool),
+                     energy_j_m2=m(nom.e_k), sample_kg=sample_kg)
+    f = spread_pass(ctx, np.arange(t.size), tt, np.where(fx, fixed, 0.0)) if fx.any() else res
+    return replace(res, **{k: np.where(fx, getattr(f, k), getattr(res, k)) for k in FIXED_FIELDS})
 
 
 def _hhmm(ts) -> str:

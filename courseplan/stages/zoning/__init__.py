@@ -38,11 +38,8 @@ import shapely
 from shapely.geometry.base import BaseGeometry
 
 from courseplan.columns import check_stage
-from courseplan.errors import InputError, OverlapError
-from courseplan.geo.chainage import cell_xy, distance_of_cells
 from courseplan.geo.coverage import ensure_tiling, smooth_coverage, split_large_zones, thin_test
 from courseplan.geo.geometry import geometry_from_geojson
-from courseplan.geo.raster import burn, fill_nearest
 from courseplan.geo.regions import (
     clip_to,
     code_key,
@@ -54,22 +51,15 @@ from courseplan.geo.regions import (
 )
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
+from courseplan.stages.zoning.cells import ENCODING_RANGE, course_cells, default_breaks  # noqa: F401
 
 SPECKLE_REGIONS = 2000
 """Above this many connected regions in the class raster, speckle below an eighth of the minimum zone
 area is sieved out (``rasterio.features.sieve``) before the merge by similarity (a Python loop)."""
 
-ENCODING_RANGE = {"fraction": (0.0, 1.0), "percent": (0.0, 100.0), "wh_m2": (0.0, 20000.0)}
-"""Accepted value range of each sun-raster encoding; values outside it are an input error."""
-
-
-def default_breaks(encoding: str, window_hours: float) -> list[float]:
-    """Default exposure-class breaks in the raster's units (see ``Zoning.exposure_breaks``)."""
-    if encoding == "fraction":
-        return [0.35, 0.70]
-    if encoding == "percent":
-        return [35.0, 70.0]
-    return [150.0 * window_hours, 350.0 * window_hours]
+_ZONE_COLS = ("exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
+              "raster_irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2",
+              "area_m2")
 
 
 def _merge_alike(merged: list[dict], settings: Zoning, breaks: list[float], n_exp: int, n_slope: int,
@@ -221,106 +211,53 @@ def zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         return _zone_course(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
 
 
+def zone_given(inp: ZoningInputs, settings: Zoning, geoms, ids, labels=None, *, window_hours: float,
+               max_uncovered_pct: float = 5.0) -> ZoningResult:
+    """Compute the zoning columns of given zones (a chief's edit) on the cells :func:`zone_course` uses.
+
+    Cells from :func:`courseplan.geo.edits.cells_of_zones`; exposure and slope class from the zone's
+    mean sun and slope, its section the one most of its cells lie in; *ids* and non-empty *labels* kept.
+    """
+    import rasterio
+
+    from courseplan.geo.edits import cells_of_zones
+
+    with rasterio.Env():
+        c = course_cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
+    zi, ci = cells_of_zones(list(geoms), c.touch, c.ct)
+    n = len(geoms)
+    cnt = np.bincount(zi, minlength=n).astype(np.float64)
+
+    def mean(a) -> np.ndarray:
+        return np.bincount(zi, weights=np.asarray(a, dtype=np.float64)[ci], minlength=n) / cnt
+
+    has_slope, a = c.slope_t is not None, np.radians(c.aspect_t) if c.aspect_t is not None else None
+    slope = mean(c.slope_t) if has_slope else np.zeros(n)
+    sec_mean = mean(1.0 / np.cos(np.radians(np.clip(c.slope_t, 0, 85)))) if has_slope else np.ones(n)
+    aspect = np.degrees(np.arctan2(mean(np.sin(a)), mean(np.cos(a)))) % 360 if a is not None else \
+        np.full(n, np.nan)
+    sun, dist = mean(c.vt), mean(c.dist_t)
+    exp = np.digitize(sun, c.breaks)
+    sl = np.digitize(slope, list(settings.slope_breaks_deg)) if has_slope else np.zeros(n, int)
+    n_sec = int(np.max(c.sec_t)) + 1
+    sec = np.argmax(np.bincount(zi * n_sec + np.asarray(c.sec_t, dtype=np.int64)[ci],
+                                minlength=n * n_sec).reshape(n, n_sec), axis=1)
+    cols_out: dict[str, list] = {k: [] for k in _ZONE_COLS}
+    for k, g in enumerate(geoms):
+        _row(cols_out, c, inp.encoding, int(exp[k]), int(sl[k]), int(sec[k]), sun=float(sun[k]),
+             slope=float(slope[k]), aspect=float(aspect[k]), dist=float(dist[k]), area=float(g.area),
+             sec_mean=float(sec_mean[k]))
+    return _result(c, cols_out, list(geoms), ids=list(ids), given_labels=list(labels) if labels else None)
+
+
 def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                  max_uncovered_pct: float) -> ZoningResult:
-    from affine import Affine
     from rasterio.features import shapes, sieve
 
-    grid = inp.sun
-    notes: list[str] = []
-    touch_w = burn(inp.course, grid, all_touched=True)
-    if not touch_w.any():
-        raise OverlapError("the sun raster window holds no cell of the course", where=grid.source,
-                           fix="check that the raster covers the course")
-    # Course first: from here on only the bounding box of the course's cells, and mostly only
-    # the course's own cells as flat arrays.
-    rr, cc = np.flatnonzero(touch_w.any(axis=1)), np.flatnonzero(touch_w.any(axis=0))
-    box = (slice(int(rr[0]), int(rr[-1]) + 1), slice(int(cc[0]), int(cc[-1]) + 1))
-    touch = touch_w[box]
-    del touch_w
-    ct = grid.transform @ Affine.translation(int(cc[0]), int(rr[0]))
-    cgrid = Grid(values=grid.values[box], transform=ct, crs=grid.crs, source=grid.source)
-    rows, cols = np.nonzero(touch)
-    v = cgrid.values
-    vt = v[touch].astype(np.float64)
-    valid_t = np.isfinite(vt)
-    uncovered = 0.0
-    if not valid_t.all():
-        inside = burn(inp.course, cgrid, all_touched=False)
-        if not inside.any():
-            inside = touch
-        uncovered = float((inside & ~np.isfinite(v)).sum()) / float(inside.sum())
-    if not valid_t.any():
-        raise InputError("the sun raster holds only nodata over the course", where=grid.source,
-                         fix="give a raster with values over the course")
-    if 100 * uncovered > max_uncovered_pct:
-        raise OverlapError(f"the sun raster covers only {100 * (1 - uncovered):.1f} % of the course "
-                           f"({100 * uncovered:.1f} % has no data, more than the {max_uncovered_pct:g} % "
-                           "allowed)", where=grid.source, fix="give a raster that covers the whole course")
-    if uncovered > 0:
-        notes.append(f"{grid.source}: {100 * uncovered:.1f} % of the course has no sun data; filled from the "
-                     "nearest cells")
-    lo, hi = ENCODING_RANGE[inp.encoding]
-    vv = vt[valid_t]
-    tol = 1e-6 * max(1.0, hi)
-    if vv.min() < lo - tol or vv.max() > hi + tol:
-        raise InputError(f"sun raster values {vv.min():.4g} … {vv.max():.4g} are outside the range "
-                         f"{lo:g} … {hi:g} of the declared encoding {inp.encoding!r}", where=grid.source,
-                         fix="set [inputs] sun_encoding to fraction (0–1), percent (0–100) or wh_m2")
-    if not valid_t.all():
-        ok = np.isfinite(v)
-        vt = fill_nearest(np.where(ok, v, 0.0), ok)[touch].astype(np.float64)
-
-    breaks = list(settings.exposure_breaks or default_breaks(inp.encoding, window_hours))
-    labels = settings.exposure_labels
-    if len(labels) != len(breaks) + 1:
-        raise InputError(f"{len(breaks)} exposure breaks need {len(breaks) + 1} labels, got {len(labels)}",
-                         where="[zoning]", fix="give one label more than breaks")
-    n_exp = len(labels)
-    exp_t = np.digitize(vt, breaks)
-
-    def on_cells(g: Grid | None) -> np.ndarray | None:
-        if g is None:
-            return None
-        a = g.values[box]
-        at = a[touch].astype(np.float64)
-        if not np.isfinite(at).all():
-            ok = np.isfinite(a)
-            at = fill_nearest(np.where(ok, a, 0.0), ok)[touch].astype(np.float64) if ok.any() else \
-                np.zeros_like(at)
-        return at
-
-    slope_t = on_cells(inp.slope_deg)
-    if slope_t is not None:
-        sbreaks = list(settings.slope_breaks_deg)
-        slope_idx_t = np.digitize(slope_t, sbreaks)
-        n_slope = len(sbreaks) + 1
-        edges = [0.0] + sbreaks + [90.0]
-        slope_labels = [f"{edges[i]:g}–{edges[i + 1]:g}°" for i in range(n_slope)]
-    else:
-        slope_idx_t = 0
-        n_slope = 1
-        slope_labels = ["n/a"]
-    aspect_t = None
-    if inp.aspect_deg is not None:
-        aspect_t = np.nan_to_num(inp.aspect_deg.values[box][touch].astype(np.float64), nan=0.0)
-
-    elev = inp.elevation_m.values[box] if inp.elevation_m is not None else None
-    dist_t, start_xy, finish_xy, dnotes = distance_of_cells(rows, cols, cgrid, inp.start_xy, inp.centreline, elev)
-    notes += dnotes
-    L = settings.section_length_m
-    if inp.markers:
-        px, py = cell_xy(cgrid, rows, cols)
-        mk = sorted((float(dist_t[int(np.argmin((px - x) ** 2 + (py - y) ** 2))]), name)
-                    for name, x, y in inp.markers)
-        mdist = np.array([m[0] for m in mk])
-        sec_t = np.searchsorted(mdist, dist_t, side="right")
-        names = ["start"] + [m[1] for m in mk] + ["finish"]
-        sec_names = [f"{a} – {b}" for a, b in zip(names[:-1], names[1:], strict=True)]
-    else:
-        sec_t = np.floor(dist_t / L).astype(np.int64)
-        sec_names = None
-
+    c = course_cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
+    touch, ct, cgrid, rows, vt, notes, n_exp = c.touch, c.ct, c.cgrid, c.rows, c.vt, c.notes, c.n_exp
+    n_slope, exp_t, slope_t, slope_idx_t, aspect_t = c.n_slope, c.exp_t, c.slope_t, c.slope_idx_t, c.aspect_t
+    dist_t, sec_t = c.dist_t, c.sec_t
     code_t = ((sec_t * n_exp + exp_t) * n_slope + slope_idx_t + 1).astype(np.int32)
     code = np.zeros(touch.shape, dtype=np.int32)
     code[touch] = code_t
@@ -375,14 +312,14 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                 pieces.append({"geom": part, "region": r, "code": int(reg_code[r]), "area": part.area})
     thin = thin_test(inp.course, settings.min_zone_width_m)
     merged = merge_small_pieces(pieces, settings.min_zone_area_m2, n_exp, n_slope, thin=thin)
-    merged = _merge_alike(merged, settings, breaks, n_exp, n_slope, r_sun,
-                          r_slope if slope_t is not None else None, sbreaks if slope_t is not None else None)
+    merged = _merge_alike(merged, settings, c.breaks, n_exp, n_slope, r_sun, r_slope if slope_t is not None else None,
+                          list(settings.slope_breaks_deg) if slope_t is not None else None)
     # Zones too big for one crew in one window: cut across the course (the parts get their own means).
     cap = max(settings.max_zone_area_m2, 2.0 * settings.min_zone_area_m2) if settings.max_zone_area_m2 > 0 else 0
-    sec_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else np.ones(vt.size)
+    secant_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else np.ones(vt.size)
     merged, rv = split_large_zones(
         merged, cap, region_t, dist_t, touch, ct, max(cgrid.cell_size),
-        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else np.zeros(vt.size), "sec": sec_t,
+        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else np.zeros(vt.size), "sec": secant_t,
          "asin": a_sin, "acos": a_cos},
         {"sun": r_sun, "dist": r_dist, "slope": r_slope, "sec": r_sec, "asin": r_asin, "acos": r_acos})
     r_sun, r_dist, r_slope, r_sec = rv["sun"], rv["dist"], rv["slope"], rv["sec"]
@@ -391,9 +328,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
     for z, g in zip(merged, ensure_tiling([z["geom"] for z in merged], inp.course), strict=True):
         z["geom"] = g
 
-    cols_out: dict[str, list] = {c: [] for c in (
-        "exposure_class", "exposure_rank", "slope_class", "section", "section_index", "sun_fraction",
-        "raster_irradiation_wh_m2", "slope_deg", "aspect_deg", "distance_from_start_m", "map_area_m2", "area_m2")}
+    cols_out: dict[str, list] = {k: [] for k in _ZONE_COLS}
     geoms = []
     for z in merged:
         regs = np.array(z["regions"])
@@ -403,44 +338,50 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         sl = code0 % n_slope
         ex = (code0 // n_slope) % n_exp
         sc = code0 // (n_slope * n_exp)
-        sun_mean = float(np.sum(w * np.nan_to_num(r_sun[regs])) / wsum)
-        sec_mean = float(np.sum(w * np.nan_to_num(r_sec[regs], nan=1.0)) / wsum)
         asp = r_aspect[regs]
-        if np.isfinite(asp).any():
-            ang = np.radians(np.nan_to_num(asp))
-            aspect_mean = float(np.degrees(np.arctan2(np.sum(w * np.sin(ang)), np.sum(w * np.cos(ang)))) % 360)
-        else:
-            aspect_mean = float("nan")
-        if sec_names is not None:
-            section = sec_names[min(sc, len(sec_names) - 1)]
-        else:
-            section = f"{sc * L:g}–{(sc + 1) * L:g} m"
-        area = float(z["geom"].area)
-        for name, value in (
-                ("exposure_class", labels[ex]), ("exposure_rank", int(ex)), ("slope_class", slope_labels[sl]),
-                ("section", section), ("section_index", int(sc)),
-                ("sun_fraction", sun_mean if inp.encoding == "fraction" else
-                 sun_mean / 100.0 if inp.encoding == "percent" else float("nan")),
-                ("raster_irradiation_wh_m2", sun_mean if inp.encoding == "wh_m2" else float("nan")),
-                ("slope_deg", float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum)),
-                ("aspect_deg", aspect_mean),
-                ("distance_from_start_m", float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum)),
-                ("map_area_m2", area), ("area_m2", area * sec_mean)):
-            cols_out[name].append(value)
+        ang = np.radians(np.nan_to_num(asp))
+        aspect_mean = float(np.degrees(np.arctan2(np.sum(w * np.sin(ang)), np.sum(w * np.cos(ang)))) % 360) \
+            if np.isfinite(asp).any() else float("nan")
+        _row(cols_out, c, inp.encoding, ex, sl, sc, sun=float(np.sum(w * np.nan_to_num(r_sun[regs])) / wsum),
+             slope=float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum), aspect=aspect_mean,
+             dist=float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum), area=float(z["geom"].area),
+             sec_mean=float(np.sum(w * np.nan_to_num(r_sec[regs], nan=1.0)) / wsum))
         geoms.append(z["geom"])
+    return _result(c, cols_out, geoms)
+
+
+def _row(cols_out: dict, c, encoding: str, ex: int, sl: int, sc: int, *, sun: float, slope: float,
+         aspect: float, dist: float, area: float, sec_mean: float) -> None:
+    """Append one zone's zoning columns: class indices, means over its cells, its map area."""
+    section = c.sec_names[min(sc, len(c.sec_names) - 1)] if c.sec_names is not None else \
+        f"{sc * c.L:g}–{(sc + 1) * c.L:g} m"
+    for name, value in (
+            ("exposure_class", c.labels[ex]), ("exposure_rank", int(ex)), ("slope_class", c.slope_labels[sl]),
+            ("section", section), ("section_index", int(sc)),
+            ("sun_fraction", sun if encoding == "fraction" else
+             sun / 100.0 if encoding == "percent" else float("nan")),
+            ("raster_irradiation_wh_m2", sun if encoding == "wh_m2" else float("nan")),
+            ("slope_deg", slope), ("aspect_deg", aspect), ("distance_from_start_m", dist),
+            ("map_area_m2", area), ("area_m2", area * sec_mean)):
+        cols_out[name].append(value)
+
+
+def _result(c, cols_out: dict, geoms: list, ids=None, given_labels=None) -> ZoningResult:
+    """Step 7: course order, ids and labels (the given ones kept), the exposure grid, the result."""
     # Course order: mean distance from the start, then exposure rank (stable).
     order = np.lexsort((np.asarray(cols_out["exposure_rank"], dtype=np.int64),
                         np.asarray(cols_out["distance_from_start_m"], dtype=np.float64))).tolist()
     n = len(order)
-    table: dict[str, list] = {"zone_id": list(range(1, n + 1)), "course_order": list(range(1, n + 1))}
+    table: dict[str, list] = {"zone_id": list(range(1, n + 1)) if ids is None else
+                              [int(ids[i]) for i in order], "course_order": list(range(1, n + 1))}
     table.update({k: [vals[i] for i in order] for k, vals in cols_out.items()})
-    table["label"] = zone_labels(table["section_index"])
-    exp_grid = np.full(touch.shape, -1.0, dtype=np.float32)
-    exp_grid[touch] = exp_t
-    exposure_grid = Grid(values=exp_grid, transform=ct, crs=grid.crs, source="exposure class index")
+    made = zone_labels(table["section_index"])
+    kept = [None] * n if given_labels is None else [given_labels[i] for i in order]
+    table["label"] = [k if k else m for k, m in zip(kept, made, strict=True)]
+    exp_grid = np.full(c.touch.shape, -1.0, dtype=np.float32)
+    exp_grid[c.touch] = c.exp_t
+    exposure_grid = Grid(values=exp_grid, transform=c.ct, crs=c.grid.crs, source="exposure class index")
     check_stage("zoning", (), table)
-    return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=grid.crs,
-                        start_xy=start_xy, finish_xy=finish_xy, exposure_breaks=tuple(breaks),
-                        uncovered_share=uncovered, notes=tuple(notes), exposure_grid=exposure_grid)
-
-
+    return ZoningResult(table=table, geometries=tuple(geoms[i] for i in order), crs=c.grid.crs,
+                        start_xy=c.start_xy, finish_xy=c.finish_xy, exposure_breaks=tuple(c.breaks),
+                        uncovered_share=c.uncovered, notes=tuple(c.notes), exposure_grid=exposure_grid)
