@@ -183,8 +183,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     course_z, no_salt, ns_notes = _cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
     notes += ns_notes
     zin = ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
-                       aspect_deg=ps.aspect, elevation_m=ps.elevation, start_xy=_start_in_work(settings, inputs),
-                       centreline=inputs.centreline, markers=inputs.markers)
+                       aspect_deg=ps.aspect, elevation_m=ps.elevation, centreline=inputs.centreline,
+                       start_xy=_start_in_work(settings, inputs), markers=inputs.markers)
     zkw = dict(window_hours=(day1 - day0).total_seconds() / 3600.0,
                max_uncovered_pct=settings.inputs.max_uncovered_pct)
     ez = inputs.zones

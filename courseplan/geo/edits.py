@@ -62,7 +62,7 @@ class EditedZones:
     notes: tuple = field(default=())
 
     def override(self, zone_id: int) -> dict:
-        """Return the overrides of one zone: ``{"edit_skip", "edit_dose_g_m2", "edit_agent"}`` (None = none)."""
+        """Return one zone's overrides: ``edit_skip``, ``edit_dose_g_m2``, ``edit_agent`` (None = none)."""
         k = self.zone_id.index(int(zone_id))
         dose = float(self.dose_g_m2[k])
         return {"edit_skip": True if self.skip[k] else None,
@@ -144,8 +144,8 @@ def fit_to_course(geoms: list[BaseGeometry], ids: list[int], course: BaseGeometr
                          fix="snap the zones to each other and to the course outline (no-salt areas left "
                              "out) in the GIS, e.g. with topological editing on, and save again")
     fixed = tile_course(list(g), course)
-    notes = [f"{where}: mended {n_mended} sliver(s) of digitising noise ({mended:,.1f} m² in all): clipped to "
-             "the course or given to the neighbour sharing the longest edge"] if n_mended else []
+    notes = [f"{where}: mended {n_mended} sliver(s) of digitising noise ({mended:,.1f} m² in all): "
+             "clipped to the course or given to the neighbour sharing the longest edge"] if n_mended else []
     return fixed, notes
 
 

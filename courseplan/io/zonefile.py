@@ -39,13 +39,14 @@ def _layer(p: Path) -> str | None:
         return polys[0]
     if not polys:
         raise InputError(f"the edited zones file holds no polygon layer (layers: "
-                         f"{', '.join(names) or 'none'})", where=str(p), fix="give the file with the zones layer")
+                         f"{', '.join(names) or 'none'})", where=str(p),
+                         fix="give the file with the zones layer")
     raise InputError(f"the edited zones file has no layer 'zones' but {len(polys)} polygon layers "
                      f"({', '.join(polys[:12])})", where=str(p), fix="rename the edited layer to zones")
 
 
 def read_zones(path, crs, catalogue: dict | None = None) -> EditedZones:
-    """Read the edited zones of *path* in *crs*, overrides checked (:class:`~courseplan.geo.edits.EditedZones`).
+    """Read the edited zones of *path* in *crs*, overrides checked (:class:`~.geo.edits.EditedZones`).
 
     Raises
     ------

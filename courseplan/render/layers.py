@@ -139,7 +139,7 @@ def _grams(v: Any) -> str | None:
 
 
 def fixed_dose_text(value: Any) -> str | None:
-    """Return the line shown where a dose is when the chief of course fixed it (``edit_dose_g_m2``), else None."""
+    """Return the line shown where a dose is when the chief of course fixed it (``edit_dose_g_m2``)."""
     v = scalar(value)
     if isinstance(v, (int, float)) and math.isfinite(float(v)):
         return f"{float(v):g} g/m² every pass, fixed by the chief of course"

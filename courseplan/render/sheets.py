@@ -153,7 +153,8 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
 
     zt = result.zones
     doses = zt.get("edit_dose_g_m2", [None] * len(zt))
-    fixed = {int(i): fixed_dose_text(d) for i, d in zip(zt["zone_id"], doses, strict=True) if fixed_dose_text(d)}
+    fixed = {int(i): fixed_dose_text(d) for i, d in zip(zt["zone_id"], doses, strict=True)
+             if fixed_dose_text(d)}
 
     s = result.summary()
     cr = s["crews"]
@@ -269,7 +270,8 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
         _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
         Spacer(1, 1.5 * mm),
         *[Paragraph(f"<b>Zone {escape(lab)}:</b> {escape(text)}.", st["body"]) for lab, text in dict.fromkeys(
-            (str(w["label"]), fixed[w.get("zone_id")]) for w in c["work"] if w.get("zone_id") in (fixed or {}))],
+            (str(w["label"]), fixed[w.get("zone_id")]) for w in c["work"]
+            if w.get("zone_id") in (fixed or {}))],
         Paragraph("Hatched and outlined: <b>your zones</b>; grey: other crews' zones"
                   + ("; cross-hatched: <b>no salt</b> (finish area, streams, cables)."
                      if no_salt is not None and len(no_salt) else "."), st["small"]),
