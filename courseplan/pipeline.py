@@ -195,7 +195,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
         zres = zone_course(zin, settings.zoning, **zkw)
     check_stage("zoning", (), zres.zones.columns)
     zones = _staged("edits", zres.zones, lambda z: add_edits(z, ez, agent.name))
-    notes += list(zres.notes) + ([kept_note(ez, zones), *ez.notes, *fit_notes] if ez is not None else [])
+    kept = [kept_note(ez, zones), *ez.notes, *fit_notes] if ez is not None else []  # lead, after a shortfall
+    notes += list(zres.notes)
     zones, sources = _staged("sun", zones, lambda z: zone_irradiation(z, ps))
 
     step("conditions")
@@ -220,7 +221,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     late_notes = _late_notes(zones, worked, schedule, settings, day0, shortfall)
     zones, passes, dose_notes, plan_p90 = finish_dosing(ctx, results, schedule)
     check_stage("dosing", ctx.zones.columns, zones.columns)
-    notes = late_notes + notes + dose_notes  # a shortfall leads every output
+    lead = 1 if shortfall is not None else 0  # a shortfall leads every output, then what an edit kept
+    notes = late_notes[:lead] + kept + late_notes[lead:] + notes + dose_notes
     high = zones["max_pass_g_m2"].to_numpy(float) > PRACTICE_HIGH_G_M2
     if high.any():
         notes.append(f"{int(high.sum())} zone(s) get a pass above {PRACTICE_HIGH_G_M2:.0f} g/m², beyond anything "
