@@ -77,7 +77,8 @@ def _merge_alike(merged: list[dict], settings: Zoning, breaks: list[float], n_ex
         regs, w = np.asarray(z["regions"]), np.asarray(z["weights"])
         sun = float(np.sum(w * np.nan_to_num(r_sun[regs])) / w.sum())
         slope = float(np.sum(w * np.nan_to_num(r_slope[regs])) / w.sum()) if r_slope is not None else 0.0
-        return code_key(z["code"], n_exp, n_slope)[2], sun, slope, code_key(z["code"], n_exp, n_slope)[1]
+        _, slope_class, section = code_key(z["code"], n_exp, n_slope)
+        return section, sun, slope, slope_class
 
     def alike(a: tuple, b: tuple) -> float | None:
         if a[0] != b[0] or abs(a[1] - b[1]) >= sun_step:
