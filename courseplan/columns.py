@@ -88,6 +88,7 @@ CONDITIONS = _cols(
 DOSING = _cols(
     "dosing",
     ("verdict", "", "what to do in this zone", "str"),
+    ("agent", "", "the agent this zone is dosed with (catalogue name): the plan's, or its edit_agent", "str"),
     ("advice", "", "one line of advice for the verdict", "str"),
     ("energy_in_mj_m2", "MJ/m²", "net energy that arrives while pass 1 acts (peak over τ), nominal", "float"),
     ("dose_g_m2", "g/m²", "product over the race day, all passes, P50", "float"),
@@ -130,6 +131,7 @@ PASSES = _cols(
     ("zone_id", "", "zone the pass is for", "int"),
     ("pass_no", "", "pass number in the zone, 1 = before inspection", "int"),
     ("slot", "", "when in the race day: before inspection, or the break before run k", "str"),
+    ("agent", "", "the agent spread (catalogue name)", "str"),
     ("spread_at", "ISO 8601", "when the crew has spread the pass, local time with offset", "str"),
     ("dose_g_m2", "g/m²", "product dose of this pass, P50", "float"),
     ("dose_p90_g_m2", "g/m²", "product dose of this pass, P90", "float"),

@@ -98,11 +98,13 @@ class PlanResult:
     shortfall: Any = None  # dict when the crews cannot do the plan in time (see _shortfall), else None
     no_salt: Any = None  # GeoDataFrame of the no-salt areas on the course (name, area_m2), or None
     schedule: Any = None  # courseplan.schedule.RaceSchedule
+    agents: Any = None  # name → catalogue agent: the plan's first, then the zones' own (edit_agent)
 
     def totals(self) -> dict[str, Any]:
         """Plan totals (all zones): areas, masses, loads."""
         z = self.zones
         treated = z["product_kg"] > 0
+        orders = self.logistics.orders or (self.logistics.order,)
         return {
             "agent": self.agent.name,
             "agent_label": self.agent.label,
@@ -113,7 +115,9 @@ class PlanResult:
             "course_surface_area_m2": float(z["area_m2"].sum()),
             "treated_area_m2": float(z.loc[treated, "area_m2"].sum()),
             "total_product_kg": float(z["product_kg"].sum()),
-            "total_product_p90_kg": float(self.logistics.order.p90_kg),
+            "total_product_p90_kg": float(sum(o.p90_kg for o in orders)),
+            "by_agent": {o.agent: {"product_kg": float(z.loc[z["agent"] == o.agent, "product_kg"].sum()),
+                                   "product_p90_kg": float(o.p90_kg)} for o in orders},
             "nitrogen_kg": float(z["nitrogen_kg"].sum()),
             "chloride_kg": float(z["chloride_kg"].sum()),
             "verdicts": {str(k): int(v) for k, v in z["verdict"].value_counts().sort_index().items()},
@@ -152,7 +156,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     from courseplan.stages.crews import crew_bag_kg
     from courseplan.stages.crews.raceday import assign_crews
     from courseplan.stages.dosing import finish_dosing, prepare_dosing
-    from courseplan.stages.edits import add_edits, kept_note
+    from courseplan.stages.dosing.mixed import plan_agents
+    from courseplan.stages.edits import add_edits, cut_no_salt, kept_note
     from courseplan.stages.sun import plan_sun, zone_irradiation
     from courseplan.stages.weather import uniform_steps, weather_from_settings, weather_from_table
     from courseplan.stages.zoning import ZoningInputs, zone_course, zone_given
@@ -180,7 +185,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     notes = list(inputs.notes) + list(schedule.notes) + list(ps.notes)
 
     step("zoning")
-    course_z, no_salt, ns_notes = _cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
+    course_z, no_salt, ns_notes = cut_no_salt(inputs.course, inputs.no_salt, inputs.crs)
     notes += ns_notes
     zin = ZoningInputs(course=course_z, sun=ps.sun, encoding=ps.encoding, slope_deg=ps.slope,
                        aspect_deg=ps.aspect, elevation_m=ps.elevation, centreline=inputs.centreline,
@@ -194,7 +199,8 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     else:
         zres = zone_course(zin, settings.zoning, **zkw)
     check_stage("zoning", (), zres.zones.columns)
-    zones = _staged("edits", zres.zones, lambda z: add_edits(z, ez, agent.name))
+    zones = _staged("edits", zres.zones, lambda z: add_edits(z, ez, inputs.catalogue))
+    agents = plan_agents(zones, agent, inputs.catalogue, crew_bag_kg, settings, where=ez.source if ez else "")
     kept = [kept_note(ez, zones), *ez.notes, *fit_notes] if ez is not None else []  # lead, after a shortfall
     notes += list(zres.notes)
     zones, sources = _staged("sun", zones, lambda z: zone_irradiation(z, ps))
@@ -215,7 +221,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
                                      source=f"forecast file {sources.get('forecast', '')}".strip())
     else:
         weather = weather_from_settings(settings, cs, steps=steps)
-    ctx = prepare_dosing(zones, settings, agent, weather)
+    ctx = prepare_dosing(zones, settings, agent, weather, agents=agents)
     results, worked = _race_day(zones, ctx, schedule, settings, bag_kg)
     shortfall = _shortfall(zones, worked, schedule, settings, ctx, bag_kg)
     late_notes = _late_notes(zones, worked, schedule, settings, day0, shortfall)
@@ -231,38 +237,17 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     step("logistics")
     log = _staged("logistics", gpd.GeoDataFrame(zones, geometry="geometry", crs=inputs.crs),
                   lambda z: plan_logistics(z, settings, agent, passes=passes, plan_p90_kg=plan_p90,
-                                           race_start=schedule.first_start.strftime("%H:%M")))
+                                           race_start=schedule.first_start.strftime("%H:%M"), agents=agents))
     course = gpd.GeoDataFrame({"name": [inputs.course_name]}, geometry=[inputs.course], crs=inputs.crs)
-    cautions = tuple(cautions_for(agent.name, agent.nitrogen_fraction, nitrate=bool(agent.oxidiser)))
+    used = [a for n, a in agents.items() if n == agent.name or (zones["agent"] == n).any()]
+    cautions = tuple(dict.fromkeys(c for a in used for c in cautions_for(a.name, a.nitrogen_fraction,
+                                                                          nitrate=bool(a.oxidiser))))
     context = inputs.dem if inputs.dem is not None else ps.sun
     return PlanResult(settings=settings, agent=agent, zones=log.zones, course=course, observations=obs,
                       logistics=log, weather=weather, start_xy=zres.start_xy, finish_xy=zres.finish_xy,
                       crs=inputs.crs, notes=tuple(notes) + tuple(log.notes), cautions=cautions,
                       context=context, sources=sources, passes=passes, schedule=schedule,
-                      shortfall=shortfall, no_salt=no_salt)
-
-
-def _cut_no_salt(course, areas, crs):
-    """The course less its no-salt areas (zoned and dosed), the areas on the course, and a note."""
-    import geopandas as gpd
-    import shapely
-
-    if not areas:
-        return course, None, []
-    cut = [(name, shapely.intersection(geom, course)) for name, geom in areas]
-    cut = [(n, g) for n, g in cut if not g.is_empty and g.area > 0]
-    if not cut:
-        return course, None, ["the no-salt areas do not touch the course"]
-    rest = shapely.difference(course, shapely.union_all([g for _, g in cut]))
-    if rest.is_empty or rest.area < 1.0:
-        raise SettingsError("the no-salt areas cover the whole course", where="[inputs] no_salt",
-                            fix="check the files and buffers")
-    table = gpd.GeoDataFrame({"name": [n for n, _ in cut], "area_m2": [float(g.area) for _, g in cut]},
-                             geometry=[g for _, g in cut], crs=crs)
-    total = float(shapely.union_all(table.geometry.to_numpy()).area)
-    note = (f"no salt on {total:,.0f} m² ({total / course.area:.1%} of the course): "
-            + ", ".join(f"{n} {a:,.0f} m²" for n, a in zip(table["name"], table["area_m2"], strict=True)))
-    return rest, table, [note]
+                      shortfall=shortfall, no_salt=no_salt, agents=agents)
 
 
 def _race_day(zones, ctx, schedule, settings: PlanSettings, bag_kg: float, *, after=None, hold_s=None):
@@ -429,17 +414,22 @@ def _start_in_work(settings: PlanSettings, inputs: LoadedInputs) -> tuple[float,
     return float(x), float(y)
 
 
-def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start=None, plan_p90_kg=None):
-    """The crews' bags and depots, then the order: :class:`~courseplan.stages.logistics.LogisticsResult`."""
+def plan_logistics(zones, settings: PlanSettings, agent, passes=None, race_start=None, plan_p90_kg=None,
+                   agents=None):
+    """The crews' bags and depots, then the order: :class:`~courseplan.stages.logistics.LogisticsResult`.
+
+    A mixed plan (zones with their own agent, *agents* name → agent) gets one order line per agent
+    and one delivery per depot and agent (:func:`courseplan.stages.logistics.orders_by_agent`).
+    """
     from courseplan.stages.crews import plan_crews
-    from courseplan.stages.logistics import LogisticsResult, plan_order
+    from courseplan.stages.crews.raceday import METHODS
+    from courseplan.stages.logistics import LogisticsResult, orders_by_agent
 
     cp = plan_crews(zones, settings, agent, pass_table=passes, race_start=race_start, plan_p90_kg=plan_p90_kg)
-    order = plan_order(cp.zones, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg, depots=cp.depots)
-    from courseplan.stages.crews.raceday import METHODS
-
-    return LogisticsResult(zones=cp.zones, crews=cp.crews, order=order, first_start=cp.first_start,
+    orders, depots = orders_by_agent(cp, settings, agent, agents or {agent.name: agent}, plan_p90_kg)
+    return LogisticsResult(zones=cp.zones, crews=cp.crews, order=orders[0], orders=orders,
+                           first_start=cp.first_start,
                            wait_min=cp.wait_min, handful_g=cp.handful_g, notes=cp.notes, work=cp.work,
-                           depots=cp.depots, method=METHODS[settings.logistics.method].label)
+                           depots=depots, method=METHODS[settings.logistics.method].label)
 
 

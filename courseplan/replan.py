@@ -27,7 +27,7 @@ def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str
     from courseplan.stages.dosing import VERDICTS, finish_dosing, prepare_dosing, spread_rounds
 
     s, agent, sched, z0, n = morning.settings, morning.agent, morning.schedule, morning.zones, len(morning.zones)
-    ctx0 = prepare_dosing(z0, s, agent, morning.weather)
+    ctx0 = prepare_dosing(z0, s, agent, morning.weather, agents=morning.agents)
     sp = spread.sort_values("time", kind="stable").reset_index(drop=True)
     idx = pd.Index(z0["zone_id"].to_numpy()).get_indexer(sp["zone_id"])
     done = SimpleNamespace(label=f"spread before {at:%H:%M}")
@@ -44,7 +44,7 @@ def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str
             if t >= last[zi]:
                 seen[zi] = "soft" if so else "hard"
                 hold[zi] = min(hold[zi], t) if so else max(hold[zi], t)
-    ctx = prepare_dosing(z, s, agent, morning.weather)
+    ctx = prepare_dosing(z, s, agent, morning.weather, agents=morning.agents)
     results, worked = _race_day(z, ctx, sched, s, crew_bag_kg(s, agent), after=at, hold_s=hold)
     z_all, p_all, notes, _ = finish_dosing(ctx, [(done, r) for r in rounds] + results, sched)
     z_top, _, _, p90 = finish_dosing(ctx, results, sched)
@@ -58,7 +58,7 @@ def run_replan(morning: PlanResult, at, spread, observations=None, *, label: str
                                  shortfall) + notes
     tops = p_all[p_all["slot"] != done.label].copy()
     log = plan_logistics(gpd.GeoDataFrame(z_top, geometry="geometry", crs=morning.crs), s, agent, passes=tops,
-                         plan_p90_kg=p90, race_start=sched.first_start.strftime("%H:%M"))
+                         plan_p90_kg=p90, race_start=sched.first_start.strftime("%H:%M"), agents=morning.agents)
     log = dataclasses.replace(log, crews=log.crews[log.crews["n_zones"] > 0])  # crews without a top-up: no sheet
     s2 = s.replace(plan=dataclasses.replace(s.plan, name=f"{s.plan.name} — {label}"))  # the version on every output
     out = dataclasses.replace(morning, settings=s2, zones=log.zones, logistics=log,

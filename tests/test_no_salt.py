@@ -100,13 +100,13 @@ def test_zones_and_no_salt_areas_tile_any_course(poly, areas, seed):
 
     from courseplan.errors import SettingsError
     from courseplan.io.course import SNAP_M
-    from courseplan.pipeline import _cut_no_salt
+    from courseplan.stages.edits import cut_no_salt
     from courseplan.settings import Zoning
     from courseplan.stages.zoning import ZoningInputs, zone_course
 
     assume(poly.geom_type == "Polygon" and poly.area >= 50)
     try:
-        rest, table, _ = _cut_no_salt(poly, areas, CRS.from_epsg(32632))
+        rest, table, _ = cut_no_salt(poly, areas, CRS.from_epsg(32632))
     except SettingsError:
         return  # the areas cover the whole course: refused, as the plan refuses it
     assume(rest.area >= 50)

@@ -133,3 +133,24 @@ def test_replan_summary_validates(base):
     schema = json.loads((ROOT / "courseplan" / "schema" / "summary.schema.json").read_text(encoding="utf-8"))
     doc = json.loads((base[1] / "summary.json").read_text(encoding="utf-8"))
     jsonschema.Draft202012Validator(schema, format_checker=jsonschema.FormatChecker()).validate(doc)
+
+
+def test_a_replan_keeps_each_zones_own_agent(base, tmp_path):
+    # the chief gave zone 4 urea (edit_agent): its spread and its top-ups stay urea, the rest rock salt
+    import geopandas as gpd
+
+    jsonschema = pytest.importorskip("jsonschema")
+    z = gpd.read_file(base[1] / "zones.gpkg", layer="zones")
+    z["edit_agent"] = ["urea" if i == 4 else None for i in z.zone_id]
+    z.to_file(tmp_path / "edited.gpkg", layer="zones", driver="GPKG", engine="pyogrio")
+    s = cloudy()
+    s = s.replace(inputs=dataclasses.replace(s.inputs, zones=tmp_path / "edited.gpkg"))
+    rep = replan(s, tmp_path / "o", at="10:50", as_planned=True, issued_at=ISSUED)
+    res = rep["result"]
+    p = res.passes
+    assert set(p.loc[p["zone_id"] == 4, "agent"]) == {"urea"} and len(p[p["zone_id"] == 4])
+    assert set(p.loc[p["zone_id"] != 4, "agent"]) == {"NaCl"}
+    assert res.zones.set_index("zone_id").loc[4, "agent"] == "urea"
+    doc = json.loads((tmp_path / "o" / "summary.json").read_text(encoding="utf-8"))
+    schema = json.loads((ROOT / "courseplan" / "schema" / "summary.schema.json").read_text(encoding="utf-8"))
+    jsonschema.Draft202012Validator(schema, format_checker=jsonschema.FormatChecker()).validate(doc)

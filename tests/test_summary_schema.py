@@ -47,7 +47,7 @@ def test_schema_is_shipped_as_package_data():
 
 
 def test_demo_summary_validates(schema, summary):
-    assert summary["schema_version"] == "1.1"
+    assert summary["schema_version"] == "1.2"
     assert "schedule" in summary and "passes" in summary and summary["passes"]
     validate(schema, summary)
 

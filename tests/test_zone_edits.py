@@ -232,14 +232,58 @@ def test_a_bad_edit_exits_2_with_one_line_naming_the_zones_and_writes_nothing(tr
     assert not out.exists()
 
 
-def test_a_second_agent_is_refused_in_one_line(trip, tmp_path):
+OWN_ZONE = 4  # given urea in a rock-salt plan
+
+
+@pytest.fixture(scope="module")
+def own_agent(trip, tmp_path_factory):
     d, _, _, _ = trip
     z = _zones(d / "base" / "zones.gpkg")
-    z["edit_agent"] = ["CaCl2" if i == 4 else None for i in z.zone_id]
-    res = _plan("--out", tmp_path / "o", "--zones", _write(z, tmp_path / "agent.gpkg"))
-    assert res.exit_code == 2
-    assert "edit_agent is not supported yet" in res.output and "zone(s) 4" in res.output
-    assert not (tmp_path / "o").exists()
+    z["edit_agent"] = ["urea" if i == OWN_ZONE else None for i in z.zone_id]
+    out = tmp_path_factory.mktemp("agent") / "o"
+    res = _plan("--out", out, "--zones", _write(z, out.parent / "agent.gpkg"))
+    assert res.exit_code == 0, res.output
+    return out, read_summary(out), res.output
+
+
+def test_a_zone_with_its_own_agent_is_dosed_with_it_and_gets_its_own_order_line(own_agent):
+    out, s, output = own_agent
+    z = _by_id(s)
+    assert z[OWN_ZONE]["agent"] == "urea" and z[OWN_ZONE]["product_kg"] > 0
+    assert {r["agent"] for i, r in z.items() if i != OWN_ZONE} == {"NaCl"}
+    assert {p["agent"] for p in s["passes"] if p["zone_id"] == OWN_ZONE} == {"urea"}
+    assert {p["agent"] for p in s["passes"] if p["zone_id"] != OWN_ZONE} == {"NaCl"}
+    # one order line per agent, each the sum of its zones; the bags are the zones' bags
+    assert [o["agent"] for o in s["other_orders"]] == ["urea"]
+    urea, salt = s["other_orders"][0], s["order"]
+    assert urea["p50_kg"] == pytest.approx(z[OWN_ZONE]["product_kg"], abs=0.06)
+    assert salt["p50_kg"] == pytest.approx(sum(r["product_kg"] for i, r in z.items() if i != OWN_ZONE), abs=0.06)
+    assert urea["bags_handed_out"] == z[OWN_ZONE]["bags"]
+    assert urea["bags_handed_out"] + salt["bags_handed_out"] == sum(r["bags"] for r in z.values())
+    assert sum(v["product_kg"] for v in s["by_agent"].values()) == pytest.approx(s["total_product_kg"], rel=1e-9)
+    # urea is delivered to the depot of the zone's crew only
+    crew = z[OWN_ZONE]["crew"]
+    assert [(d["crew"], d["bags"], d["agent"]) for d in urea["deliveries"]] == [(crew, z[OWN_ZONE]["bags"], "urea")]
+    assert all(d["agent"] == "NaCl" for d in salt["deliveries"])
+    # only urea brings nitrogen: N = product × purity 0.99 × 28.014/60.056 (IUPAC atomic weights)
+    assert s["nitrogen_kg"] == pytest.approx(z[OWN_ZONE]["product_kg"] * 0.99 * 28.014 / 60.056, rel=1e-3)
+    assert any("Nitrogen agents" in c for c in s["cautions"])
+    assert f"1 own agent (zone {OWN_ZONE} urea)" in next(n for n in s["notes"] if n.startswith("kept "))
+    assert "of urea (CO(NH2)2)" in output and "of rock salt (NaCl)" in output
+
+
+def test_the_sheets_and_the_map_name_the_zones_own_agent(own_agent, trip):
+    from pypdf import PdfReader
+
+    out, s, _ = own_agent
+    def text(f):
+        return " ".join(" ".join(p.extract_text().split()) for p in PdfReader(out / f).pages)
+    label = _by_id(s)[OWN_ZONE]["label"]
+    assert f"Zone {label}: urea (CO(NH2)2) from its own bags, not rock salt (NaCl)." in text("crews.pdf")
+    assert "Order: urea (CO(NH2)2)" in text("order.pdf") and "Order: rock salt (NaCl)" in text("order.pdf")
+    assert "urea, chosen by the chief of course" in (out / "map.html").read_text(encoding="utf-8")
+    d = trip[0]
+    assert "Order: urea" not in " ".join(p.extract_text() for p in PdfReader(d / "base" / "order.pdf").pages)
 
 
 # ---- the reader ----------------------------------------------------------------------------------

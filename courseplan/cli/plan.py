@@ -123,15 +123,19 @@ def summary_lines(result, out_dir: Path) -> list[tuple[str, str, str | None]]:
     o = result.logistics.order
     log = result.logistics.summary()
     pl = result.settings.plan
-    out: list[tuple[str, str, str | None]] = [
-        ("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold"),
-        ("product: ", f"{tot['total_product_kg']:,.0f} kg (P50), {tot['total_product_p90_kg']:,.0f} kg (P90)",
-         "bold")]
-    packs = ", ".join(f"{p['count']} {p['kind']}{'s' if p['count'] != 1 else ''} of {p['size_kg']:g} kg"
-                      for p in (log.get("order") or {}).get("packages", []) if p.get("count"))
-    pallets = f" on {o.pallets} pallets" if getattr(o, "pallets", None) else ""
-    out.append(("order: ", f"{o.order_kg:,.0f} kg = {o.tonnes:.2f} t"
-                + (f": {packs}{pallets}" if packs else ""), None))
+    out: list[tuple[str, str, str | None]] = [("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold")]
+    orders = result.logistics.orders or (o,)
+    mixed = len(orders) > 1  # zones with their own agent: a product and an order line per agent
+    for od in orders:
+        kg = tot["by_agent"][od.agent]["product_kg"] if mixed else tot["total_product_kg"]
+        out.append(("product: ", f"{kg:,.0f} kg (P50), {od.p90_kg:,.0f} kg (P90)"
+                    + (f" of {od.agent_label}" if mixed else ""), "bold"))
+    for od in orders:
+        packs = ", ".join(f"{p.count} {p.kind}{'s' if p.count != 1 else ''} of {p.size_kg:g} kg"
+                          for p in od.packages if p.count)
+        pallets = f" on {od.pallets} pallet{'s' if od.pallets != 1 else ''}" if od.pallets else ""
+        out.append(("order: ", f"{od.order_kg:,.0f} kg = {od.tonnes:.2f} t" + (f" of {od.agent_label}" if mixed else "")
+                    + (f": {packs}{pallets}" if packs else ""), None))
     crews = (log.get("crews") or {}).get("count", 0)
     verdicts = ", ".join(f"{k} {v}" for k, v in tot["verdicts"].items())
     out.append(("zones: ", f"{tot['treated_zone_count']} of {tot['zone_count']} treated ({verdicts}); "

@@ -76,7 +76,8 @@ def entries_from_plan(result, *, venue: str | None = None, source: str = "plan",
             continue
         rows.append({"entry_id": f"{version}-{r.zone_id}", "plan_version": version, "written_at": at,
                      "venue": venue or "", "date": s.plan.date or "", "plan": s.plan.name,
-                     "agent": result.agent.name, "zone_id": str(r.zone_id), "area_m2": float(r.area_m2),
+                     "agent": str(getattr(r, "agent", result.agent.name)), "zone_id": str(r.zone_id),
+                     "area_m2": float(r.area_m2),
                      "product_kg": float(r.product_kg), "nitrogen_kg": float(r.nitrogen_kg),
                      "chloride_kg": float(r.chloride_kg), "source": source})
     return version, rows
@@ -233,18 +234,25 @@ def append_spread(path: Path | str, morning, spread, *, venue: str | None = None
     *spread* has ``zone_id`` and ``kg``; nitrogen and chloride follow from the agent (purity ×
     fraction).  The season totals count these rows instead of the morning plan's for that day.
     """
-    s, ag = morning.settings, morning.agent
-    purity = s.dosing.purity if s.dosing.purity is not None else ag.purity
+    s, plan_ag = morning.settings, morning.agent
     kg = spread.groupby("zone_id")["kg"].sum()
-    area = dict(zip(morning.zones["zone_id"].astype(int), morning.zones["area_m2"].astype(float), strict=True))
-    version = plan_version(s.plan.date, f"{s.plan.name} (spread)", ag.name, kg.items())
+    mz = morning.zones
+    area = dict(zip(mz["zone_id"].astype(int), mz["area_m2"].astype(float), strict=True))
+    own = dict(zip(mz["zone_id"].astype(int), mz["agent"], strict=True)) if "agent" in mz.columns else {}
+    agents = morning.agents or {plan_ag.name: plan_ag}
+    version = plan_version(s.plan.date, f"{s.plan.name} (spread)", plan_ag.name, kg.items())
     at = dt.datetime.now(dt.UTC).isoformat(timespec="seconds")
-    rows = [{"entry_id": f"{version}-{z}", "plan_version": version, "written_at": at, "venue": venue or "",
-             "date": s.plan.date or "", "plan": s.plan.name, "agent": ag.name, "zone_id": str(int(z)),
-             "area_m2": area.get(int(z), float("nan")), "product_kg": float(k),
-             "nitrogen_kg": float(k) * purity * ag.nitrogen_fraction,
-             "chloride_kg": float(k) * purity * ag.chloride_fraction, "source": SPREAD_SOURCE}
-            for z, k in kg.items() if float(k) > 0]
+    rows = []
+    for z, k in kg.items():
+        if not float(k) > 0:
+            continue
+        ag = agents.get(own.get(int(z), plan_ag.name), plan_ag)  # the zone's own agent, else the plan's
+        purity = s.dosing.purity if s.dosing.purity is not None and ag is plan_ag else ag.purity
+        rows.append({"entry_id": f"{version}-{z}", "plan_version": version, "written_at": at, "venue": venue or "",
+                     "date": s.plan.date or "", "plan": s.plan.name, "agent": ag.name, "zone_id": str(int(z)),
+                     "area_m2": area.get(int(z), float("nan")), "product_kg": float(k),
+                     "nitrogen_kg": float(k) * purity * ag.nitrogen_fraction,
+                     "chloride_kg": float(k) * purity * ag.chloride_fraction, "source": SPREAD_SOURCE})
     return append_rows(path, version, rows)
 
 

@@ -35,7 +35,7 @@ from courseplan.io.files import (
 )
 
 FILES = ("zones.gpkg", "map.html", "summary.json", "order.pdf", "crews.pdf")
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "1.2"
 """Version of ``summary.json`` (its JSON Schema: ``courseplan/schema/summary.schema.json``)."""
 
 
@@ -95,6 +95,7 @@ def summary_dict(result, issued_at: str | None = None) -> dict[str, Any]:
         "start_xy": list(result.start_xy),
         "finish_xy": list(result.finish_xy),
         "order": log.get("order"),
+        "other_orders": log.get("other_orders", []),
         "crews": log.get("crews"),
         "weather": result.weather.describe(),
         "sources": result.sources,

@@ -165,6 +165,8 @@ def zone_lead(row: dict[str, Any]) -> dict[str, Any]:
     treated = (isinstance(r.get("dose_g_m2"), (int, float)) and float(r["dose_g_m2"]) > 0) or bool(passes)
     if r.get("advice"):
         lines.append(("What to do", str(r["advice"])))
+    if treated and isinstance(r.get("edit_agent"), str) and r["edit_agent"]:
+        lines.append(("Agent", f"{r['edit_agent']}, chosen by the chief of course: its own bags"))
     if treated:
         times = _hhmm_list(r.get("pass_times"))
         if isinstance(passes, int) and passes > 0:

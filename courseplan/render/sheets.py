@@ -56,14 +56,57 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
 
     s = result.summary()
     o, cr = s["order"], s["crews"]
+    lines = [o, *s.get("other_orders", [])]  # one order line per agent (zones with their own agent)
+    mixed = len(lines) > 1
     st = _styles()
     story: list[Any] = [
         Paragraph(f"Order sheet – {escape(plan_name)}", st["title"]),
-        Paragraph(f"{escape(agent_label)} · race day {escape(plan_date or 'not set')} · "
-                  "for the logistics lead", st["sub"]),
-        Spacer(1, 3 * mm),
-        Paragraph("Order", st["h2"]),
+        Paragraph(f"{escape(' + '.join(x['agent_label'] for x in lines) if mixed else agent_label)} · race day "
+                  f"{escape(plan_date or 'not set')} · for the logistics lead", st["sub"]),
     ]
+    for x in lines:
+        story += _order_section(x, st, mixed)
+    story += [Spacer(1, 3 * mm), Paragraph("Depots and crews", st["h2"]),
+              Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot "
+                        "are "
+                        "whole bags per zone (P90 + margin). Every crew finishes its first pass "
+                        f"early enough for the agent to act ({num(cr['wait_min'], 0)} min); first run at "
+                        f"{cr['first_start']}.",
+                        st["small"])]
+    if o.get("deliveries"):
+        story[-1] = Paragraph("What is delivered where and by when: the bags the crews carry, on pallets, "
+                              "one depot per crew (the crew's first pass starts there)"
+                              + (", and one delivery per agent." if mixed else "."), st["small"])
+        head = ["Depot", "Crew", "Lat / lon", *(["Agent"] if mixed else []), "Bags", "kg", "Pallets", "By",
+                "2nd pass"]
+        by_crew = {c["crew"]: c for c in cr["crews"]}
+        deliveries = sorted((d for x in lines for d in x["deliveries"]), key=lambda d: d["crew"])
+        body = [[escape(d["depot"]), by_crew[d["crew"]]["label"], f"{d['lat']:.5f} N / {d['lon']:.5f} E",
+                 *([escape(d["agent"])] if mixed else []), str(d["bags"]), num(d["kg"], 0),
+                 "–" if d["pallets"] is None else str(d["pallets"]), d["deliver_by"],
+                 by_crew[d["crew"]]["second_pass"] or "–"] for d in deliveries]
+        pallets = [x["pallets"] for x in lines]
+        total = ["Total", "", "", *([""] if mixed else []), str(sum(d["bags"] for d in deliveries)),
+                 num(sum(d["kg"] for d in deliveries), 0), "–" if None in pallets else str(sum(pallets)), "", ""]
+        widths = [18, 14, 30, 14, 12, 16, 12, 12, 14] if mixed else [18, 14, 40, 12, 16, 14, 12, 16]
+        story.append(_grid_table(head, body, st, total=total, widths=widths))
+    else:
+        head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
+        body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
+                 num(c["bags"] * c["bag_kg"]), c["start"], c["second_pass"] or "–"] for c in cr["crews"]]
+        story.append(_grid_table(head, body, st, total=None,
+                                 widths=[18, 38, 22, 22, 12, 20, 14, 16]))
+    story += _notes_and_cautions([n for n in cr["notes"] if n.startswith("SHORTFALL")], cautions, st)
+    return _build(story, plan_name, plan_date, "Order sheet", issue)
+
+
+def _order_section(o: dict, st: dict, mixed: bool) -> list:
+    """The order of one agent: masses, bags, packages, pallets, cost, what it puts on the hill, storage."""
+    from reportlab.lib.units import mm
+    from reportlab.platypus import Paragraph, Spacer
+
+    story: list[Any] = [Spacer(1, 3 * mm), Paragraph("Order" + (f": {escape(o['agent_label'])}" if mixed else ""),
+                                                      st["h2"])]
     rows = [
         ["Product mass P50 (planned dose)", f"{num(o['p50_kg'])} kg"],
         ["Product mass P90", f"{num(o['p90_kg'])} kg"],
@@ -86,39 +129,15 @@ def order_pdf(result: Any, *, plan_name: str, plan_date: str | None,
     if o["big_bags"]:
         story.append(Paragraph("Big bags go to depots a machine can reach; crews fill their "
                                f"{num(o['bag_kg'])} kg bags from them there.", st["small"]))
-    story += [Spacer(1, 3 * mm), Paragraph("What the plan puts on the hill", st["h2"]),
+    story += [Spacer(1, 3 * mm), Paragraph("What the plan puts on the hill" + (f" ({escape(o['agent'])})" if mixed
+                                                                               else ""), st["h2"]),
               _kv_table([["Nitrogen",
                           f"{num(o['nitrogen_kg'])} kg (P50), {num(o['nitrogen_p90_kg'])} kg (P90)"],
                          ["Chloride",
                           f"{num(o['chloride_kg'])} kg (P50), {num(o['chloride_p90_kg'])} kg (P90)"]], st),
               Spacer(1, 3 * mm), Paragraph("Storage", st["h2"])]
     story += [Paragraph("• " + escape(c), st["body"]) for c in o["storage_cautions"]]
-    story += [Spacer(1, 3 * mm), Paragraph("Depots and crews", st["h2"]),
-              Paragraph(f"Depot coordinates in {escape(str(cr['crs'] or 'the plan CRS'))}. Bags per depot "
-                        "are "
-                        "whole bags per zone (P90 + margin). Every crew finishes its first pass "
-                        f"early enough for the agent to act ({num(cr['wait_min'], 0)} min); first run at "
-                        f"{cr['first_start']}.",
-                        st["small"])]
-    if o.get("deliveries"):
-        story[-1] = Paragraph("What is delivered where and by when: the bags the crews carry, on pallets, "
-                              "one depot per crew (the crew's first pass starts there).", st["small"])
-        head = ["Depot", "Crew", "Lat / lon", "Bags", "kg", "Pallets", "By", "2nd pass"]
-        by_crew = {c["crew"]: c for c in cr["crews"]}
-        body = [[escape(d["depot"]), by_crew[d["crew"]]["label"], f"{d['lat']:.5f} N / {d['lon']:.5f} E",
-                 str(d["bags"]), num(d["kg"], 0), "–" if d["pallets"] is None else str(d["pallets"]),
-                 d["deliver_by"], by_crew[d["crew"]]["second_pass"] or "–"] for d in o["deliveries"]]
-        total = ["Total", "", "", str(sum(d["bags"] for d in o["deliveries"])),
-                 num(sum(d["kg"] for d in o["deliveries"]), 0), str(o["pallets"] or "–"), "", ""]
-        story.append(_grid_table(head, body, st, total=total, widths=[18, 14, 40, 12, 16, 14, 12, 16]))
-    else:
-        head = ["Crew", "Zones", "Depot x", "Depot y", "Bags", "kg in bags", "Start", "2nd pass"]
-        body = [[c["label"], _zone_span(c["zone_ids"]), num(c["depot_x"]), num(c["depot_y"]), str(c["bags"]),
-                 num(c["bags"] * c["bag_kg"]), c["start"], c["second_pass"] or "–"] for c in cr["crews"]]
-        story.append(_grid_table(head, body, st, total=None,
-                                 widths=[18, 38, 22, 22, 12, 20, 14, 16]))
-    story += _notes_and_cautions([n for n in cr["notes"] if n.startswith("SHORTFALL")], cautions, st)
-    return _build(story, plan_name, plan_date, "Order sheet", issue)
+    return story
 
 
 def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
@@ -155,6 +174,10 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
     doses = zt.get("edit_dose_g_m2", [None] * len(zt))
     fixed = {int(i): fixed_dose_text(d) for i, d in zip(zt["zone_id"], doses, strict=True)
              if fixed_dose_text(d)}
+    labels = {o.agent: o.agent_label for o in (result.orders or (result.order,))}
+    plan_agent = result.order.agent
+    own = {int(i): labels.get(a, a) for i, a in zip(zt["zone_id"], zt.get("agent", [plan_agent] * len(zt)),
+                                                    strict=True) if a != plan_agent}  # zones with their own agent
 
     s = result.summary()
     cr = s["crews"]
@@ -174,7 +197,7 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
             story.append(KeepInFrame(frame_w, frame_h, _race_day_page(
                 c, cr, course_geom, treated_geoms, plan_name=plan_name, plan_date=plan_date,
                 agent_label=agent_label, cautions=cautions, issue=issue, st=st, marks=marks,
-                no_salt=no_salt, fixed=fixed), mode="shrink"))
+                no_salt=no_salt, fixed=fixed, own=own), mode="shrink"))
             if n < len(cr["crews"]) - 1:
                 story.append(PageBreak())
             continue
@@ -233,10 +256,18 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
     return _build(story, plan_name, plan_date, "Crew sheets", issue)
 
 
+def _loads(depot: dict) -> str:
+    """``: 20 bags of NaCl, 4 of urea`` when a depot holds bags of several agents, else ``""``."""
+    loads = depot.get("loads") or []
+    if len(loads) < 2:
+        return ""
+    return ": " + ", ".join(f"{x['bags']} of {escape(x['agent'])}" for x in loads)
+
+
 def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, plan_name: str,
                    plan_date: str | None, agent_label: str, cautions: Any, issue: str, st: dict,
                    marks: dict[str, tuple[float, float]] | None = None, no_salt: Any = None,
-                   fixed: dict | None = None) -> list[Any]:
+                   fixed: dict | None = None, own: dict | None = None) -> list[Any]:
     """One crew's page: crew, depot, map, then the work in order (zone, pass, window, dose, bags, rate)."""
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, Spacer
@@ -251,7 +282,9 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
     hand = any(w["handfuls_m2"] is not None for w in c["work"])
     head = ["Zone", "Pass", "Spread from – to", "Dose g/m²", "Bags",
             "Handfuls per m²" if hand else "Spreader kg/min"]
-    body = [[f"<b>{escape(str(w['label']))}</b>", str(w["pass_no"]), f"{w['from']} – {w['to']}",
+    own = own or {}
+    body = [[f"<b>{escape(str(w['label']))}</b>" + (f"<br/>{escape(own[w['zone_id']])}" if w.get("zone_id") in own
+                                                     else ""), str(w["pass_no"]), f"{w['from']} – {w['to']}",
              f"<b>{num(w['dose_g_m2'], 0)}</b>", str(w["bags"]),
              num(w["handfuls_m2"] if hand else w["flow_kg_min"], 1)] for w in c["work"]]
     total = ["Total", "", "", "", str(sum(w["bags"] for w in c["work"])), ""]
@@ -264,14 +297,17 @@ def _race_day_page(c: dict, cr: dict, course_geom: Any, treated_geoms: Any, *, p
         Spacer(1, 1.5 * mm),
         Paragraph(f"<b>Depot:</b> {escape(str(d.get('name', '')))} at {d.get('lat', 0):.5f} N, "
                   f"{d.get('lon', 0):.5f} E — {d.get('bags', c['bags'])} bags of {num(c['bag_kg'], 0)} kg "
-                  f"({num(d.get('kg', 0), 0)} kg) waiting there from {escape(str(d.get('deliver_by', '')))}",
-                  st["body"]),
+                  f"({num(d.get('kg', 0), 0)} kg{_loads(d)}) waiting there from "
+                  f"{escape(str(d.get('deliver_by', '')))}", st["body"]),
         Spacer(1, 1.5 * mm), detail, Spacer(1, 1.5 * mm),
         _grid_table(head, body, st, total=total, widths=[14, 10, 30, 18, 12, 22]),
         Spacer(1, 1.5 * mm),
         *[Paragraph(f"<b>Zone {escape(lab)}:</b> {escape(text)}.", st["body"]) for lab, text in dict.fromkeys(
             (str(w["label"]), fixed[w.get("zone_id")]) for w in c["work"]
             if w.get("zone_id") in (fixed or {}))],
+        *[Paragraph(f"<b>Zone {escape(lab)}:</b> {escape(text)} from its own bags, not {escape(agent_label)}.",
+                    st["body"]) for lab, text in dict.fromkeys((str(w["label"]), own[w["zone_id"]]) for w in c["work"]
+                                                               if w.get("zone_id") in own)],
         Paragraph("Hatched and outlined: <b>your zones</b>; grey: other crews' zones"
                   + ("; cross-hatched: <b>no salt</b> (finish area, streams, cables)."
                      if no_salt is not None and len(no_salt) else "."), st["small"]),

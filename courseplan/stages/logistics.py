@@ -39,6 +39,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from courseplan.cautions import storage_cautions
 from courseplan.settings import PlanSettings
@@ -122,43 +123,14 @@ class LogisticsResult:
     work: Any = None
     depots: Any = None
     method: str = ""
+    orders: tuple[Order, ...] = ()  # one line per agent, the plan's first (``order``); more in a mixed plan
 
     def summary(self) -> dict[str, Any]:
         """Plain, JSON-ready figures for ``summary.json`` under ``"order"`` and ``"crews"``.
 
         The sheets print exactly these (rounded) values.
         """
-        o = self.order
-        order = {
-            "agent": o.agent,
-            "agent_label": o.agent_label,
-            "p50_kg": _r(o.p50_kg, 1),
-            "p90_kg": _r(o.p90_kg, 1),
-            "margin_pct": _r(o.margin_pct, 1),
-            "needed_kg": _r(o.needed_kg, 1),
-            "bag_kg": _r(o.bag_kg, 1),
-            "bags_handed_out": o.bags_handed_out,
-            "handed_out_kg": _r(o.handed_out_kg, 1),
-            "packages": [{"kind": p.kind, "size_kg": _r(p.size_kg, 1), "count": p.count,
-                          "kg": _r(p.kg, 1)} for p in o.packages],
-            "big_bags": o.big_bags,
-            "pallets": o.pallets,
-            "order_kg": _r(o.order_kg, 1),
-            "tonnes": _r(o.tonnes, 3),
-            "price_per_kg": o.price_per_kg,
-            "cost": None if o.cost is None else _r(o.cost, 2),
-            "currency": o.currency,
-            "nitrogen_kg": _r(o.nitrogen_kg, 1),
-            "nitrogen_p90_kg": _r(o.nitrogen_p90_kg, 1),
-            "chloride_kg": _r(o.chloride_kg, 1),
-            "chloride_p90_kg": _r(o.chloride_p90_kg, 1),
-            "storage_cautions": list(o.storage_cautions),
-            "deliveries": [] if self.depots is None else [
-                {"depot": d.depot, "crew": int(d.crew), "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
-                 "bags": int(d.bags), "bag_kg": _r(d.bag_kg, 1), "kg": _r(d.kg, 1),
-                 "pallets": None if d.pallets is None or d.pallets != d.pallets else int(d.pallets),
-                 "deliver_by": d.deliver_by} for d in self.depots.itertuples(index=False)],
-        }
+        order = _order_summary(self.order, self.depots)
         crs = self.crews.crs
         zones = self.zones
         crews = []
@@ -174,7 +146,7 @@ class LogisticsResult:
                 "product_kg": _r(row.product_kg, 1),
                 "product_p90_kg": _r(row.product_p90_kg, 1),
                 "bags": int(row.bags),
-                "bag_kg": _r(o.bag_kg, 1),
+                "bag_kg": _r(self.order.bag_kg, 1),
                 "work_min": _r(row.work_min, 0),
                 "pre_race_min": _r(row.pre_race_min, 0),
                 "passes": int(row.passes),
@@ -192,10 +164,7 @@ class LogisticsResult:
                      "handfuls_m2": None if w.handfuls_m2 != w.handfuls_m2 else _r(w.handfuls_m2, 1),
                      "flow_kg_min": None if w.flow_kg_min != w.flow_kg_min else _r(w.flow_kg_min, 1)}
                     for w in self.work[self.work["crew"] == row.crew].itertuples(index=False)],
-                "depot": None if self.depots is None else next(
-                    ({"name": d.depot, "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
-                      "bags": int(d.bags), "kg": _r(d.kg, 1), "deliver_by": d.deliver_by}
-                     for d in self.depots.itertuples(index=False) if int(d.crew) == int(row.crew)), None),
+                "depot": None if self.depots is None else _crew_depot(self.depots, int(row.crew)),
                 "zones": [{
                     "zone_id": int(z.zone_id),
                     "course_order": int(z.course_order),
@@ -212,12 +181,98 @@ class LogisticsResult:
                 } for z in zs.itertuples(index=False)],
             })
         return {"order": order,
+                "other_orders": [_order_summary(o, self.depots) for o in self.orders[1:]],
                 "crews": {"count": len(crews), "crs": None if crs is None else crs.to_string(),
                           "first_start": self.first_start, "wait_min": _r(self.wait_min, 0),
                           "handful_g": _r(self.handful_g, 0), "notes": list(self.notes),
                           "method": self.method,
                           "plan_notes": [n for n in self.notes if not n.startswith("Crew ")],
                           "crews": crews}}
+
+
+def _crew_depot(depots, crew: int) -> dict[str, Any] | None:
+    """A crew's depot: where, what waits there (in all and per agent) and by when."""
+    mine = [d for d in depots.itertuples(index=False) if int(d.crew) == crew]
+    if not mine:
+        return None
+    d = mine[0]
+    return {"name": d.depot, "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
+            "bags": int(sum(int(m.bags) for m in mine)), "kg": _r(sum(float(m.kg) for m in mine), 1),
+            "deliver_by": d.deliver_by,
+            "loads": [{"agent": str(getattr(m, "agent", "")), "bags": int(m.bags), "kg": _r(m.kg, 1)} for m in mine]}
+
+
+def _order_summary(o: Order, depots) -> dict[str, Any]:
+    """One order line as JSON-ready figures, with the deliveries of its agent."""
+    if depots is not None and "agent" in depots.columns:
+        depots = depots[depots["agent"] == o.agent]
+    return {
+        "agent": o.agent,
+        "agent_label": o.agent_label,
+        "p50_kg": _r(o.p50_kg, 1),
+        "p90_kg": _r(o.p90_kg, 1),
+        "margin_pct": _r(o.margin_pct, 1),
+        "needed_kg": _r(o.needed_kg, 1),
+        "bag_kg": _r(o.bag_kg, 1),
+        "bags_handed_out": o.bags_handed_out,
+        "handed_out_kg": _r(o.handed_out_kg, 1),
+        "packages": [{"kind": p.kind, "size_kg": _r(p.size_kg, 1), "count": p.count,
+                      "kg": _r(p.kg, 1)} for p in o.packages],
+        "big_bags": o.big_bags,
+        "pallets": o.pallets,
+        "order_kg": _r(o.order_kg, 1),
+        "tonnes": _r(o.tonnes, 3),
+        "price_per_kg": o.price_per_kg,
+        "cost": None if o.cost is None else _r(o.cost, 2),
+        "currency": o.currency,
+        "nitrogen_kg": _r(o.nitrogen_kg, 1),
+        "nitrogen_p90_kg": _r(o.nitrogen_p90_kg, 1),
+        "chloride_kg": _r(o.chloride_kg, 1),
+        "chloride_p90_kg": _r(o.chloride_p90_kg, 1),
+        "storage_cautions": list(o.storage_cautions),
+        "deliveries": [] if depots is None else [
+            {"depot": d.depot, "crew": int(d.crew), "agent": str(getattr(d, "agent", o.agent)), "lat": round(float(d.lat), 6), "lon": round(float(d.lon), 6),
+             "bags": int(d.bags), "bag_kg": _r(d.bag_kg, 1), "kg": _r(d.kg, 1),
+             "pallets": None if d.pallets is None or d.pallets != d.pallets else int(d.pallets),
+             "deliver_by": d.deliver_by} for d in depots.itertuples(index=False)],
+    }
+
+
+def orders_by_agent(cp, settings: PlanSettings, agent: Any, agents: dict, plan_p90_kg: float | None):
+    """One :class:`Order` per agent of the plan (the plan's first) and the depots, one row per depot and agent.
+
+    Each agent's P90 is its zones' share of the plan's P90 (the zones' P90s scaled to the day's, as
+    the bags are, :func:`courseplan.stages.crews.plan_crews`), at least its P50.
+    """
+    z = cp.zones
+    names = z["agent"].astype(str).to_numpy() if "agent" in z.columns else np.full(len(z), agent.name)
+    kg = np.nan_to_num(z["product_kg"].to_numpy(dtype=float))
+    kg90 = np.where(kg > 0, np.maximum(np.nan_to_num(z["product_p90_kg"].to_numpy(dtype=float)), kg), 0.0)
+    scale = 1.0 if plan_p90_kg is None or kg90.sum() <= 0 else max(plan_p90_kg, kg.sum()) / kg90.sum()
+    depots = cp.depots
+    if depots is not None:
+        depots = depots.assign(agent=agent.name)
+    used = [agent.name] + sorted(set(names[kg > 0]) - {agent.name})
+    if len(used) == 1:
+        return (plan_order(z, settings, agent, cp.bag_kg, plan_p90_kg=plan_p90_kg, depots=depots),), depots
+    if depots is not None:  # one delivery per depot and agent: the bags of that agent's zones of the crew
+        rows = []
+        for name in used:
+            bags = z.loc[names == name].groupby("crew")["bags"].sum()
+            part = depots.assign(agent=name, bags=depots["crew"].map(bags).fillna(0).astype(int))
+            per = settings.logistics.bags_per_pallet or getattr(agents[name], "bags_per_pallet", None)
+            part["kg"] = part["bags"] * cp.bag_kg
+            part["pallets"] = [int(math.ceil(b / per)) if per else None for b in part["bags"]]
+            rows.append(part[part["bags"] > 0])
+        depots = pd.concat(rows, ignore_index=True).sort_values(["crew", "agent"], kind="stable")
+        depots = depots.reset_index(drop=True)
+    orders = []
+    for name in used:
+        sel = names == name
+        p90 = max(float(kg90[sel].sum()) * scale, float(kg[sel].sum()))
+        mine = None if depots is None else depots[depots["agent"] == name]
+        orders.append(plan_order(z[sel], settings, agents[name], cp.bag_kg, plan_p90_kg=p90, depots=mine))
+    return tuple(orders), depots
 
 
 def _r(x: float, nd: int) -> float:

@@ -28,8 +28,9 @@ from courseplan.calibration import calibrated_refreeze_share
 from courseplan.errors import InputError
 from courseplan.physics import energy
 from courseplan.physics.dose import NEW_SNOW_GRAINS, latin_hypercube, sample_lwc_pct
-from courseplan.physics.hold import EnergySeries, first_gain_time_s, keep_hard, pass_dose
-from courseplan.physics.snow import WETNESS_CLASSES, class_range_text
+from courseplan.physics.hold import EnergySeries, first_gain_time_s, pass_dose
+from courseplan.stages.dosing.mixed import agent_groups, is_mixed, per_zone, scatter, spread_by_agent
+from courseplan.stages.dosing.notes import TEMP_TOL_K, TREATED, pass_notes, provenance
 
 if TYPE_CHECKING:  # the weather stage's record, for annotations only
     from courseplan.stages.weather import Weather
@@ -54,10 +55,7 @@ VERDICTS: dict[str, str] = {
 }
 """Verdict name → one line of advice (the project's own words)."""
 
-TREATED = ("treat", "treat-in-passes", "slush-risk")
 FIXED_FIELDS = ("sub_passes", "hard_from_s", "hard_until_s", "layer_temp_c", "temp_flag", "slush_risk")
-TEMP_TOL_K = 2.0
-"""Tolerance of the closed-layer check: the pass's closed-layer temperature within 2 K of T_b."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -82,6 +80,7 @@ class DoseContext:
     sampled_lwc: np.ndarray
     weather_source: str = ""
     k_f_source: str = "setting"
+    groups: tuple = ()  # a mixed plan: (zone index, DoseContext) per agent (.mixed)
 
     def seconds(self, ts) -> np.ndarray:
         """Seconds from the series origin of tz-aware times (NaT → NaN)."""
@@ -127,13 +126,14 @@ def _check(zones: pd.DataFrame) -> None:
                              fix="fill it in the conditions/zoning stage")
 
 
-def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather) -> DoseContext:
+def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather, agents=None) -> DoseContext:
     """Net energy series of every zone over the race day (nominal and sampled) and the samples.
 
     The weather must come on equal steps (:func:`courseplan.stages.weather.uniform_steps`).  Each
     step's shortwave is the zone's irradiation × the step's clear-sky share × the Kasten & Czeplak
     cloud factor × (1 − albedo); longwave (Brutsaert), sensible and latent heat come from
-    :func:`courseplan.physics.energy.weather_flux_w_m2` (Eq. B1).
+    :func:`courseplan.physics.energy.weather_flux_w_m2` (Eq. B1).  With *agents* (name → agent) and
+    zones naming another agent in ``edit_agent``, each agent's zones get a context of their own.
     """
     _check(zones)
     ds = settings.dosing
@@ -184,7 +184,10 @@ def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather
     kw = dict(tau_s=ds.tau_min * 60.0, depth_m=ds.depth_m, refreeze_share=k_f,
               brine_exit_temp_c=ds.brine_exit_temp_c, mix_depth_m=ds.mix_depth_m, slush_limit=ds.slush_limit,
               purity=purity, lwc_min_pct=ds.lwc_min_pct)
-    return DoseContext(zones=zones, agent=agent, settings=settings, purity=purity,
+    groups = ()
+    if agents and is_mixed(zones, agent.name):
+        groups = agent_groups(zones, settings, agent, agents, lambda z, s, a: prepare_dosing(z, s, a, weather))
+    return DoseContext(zones=zones, agent=agent, settings=settings, purity=purity, groups=groups,
                        t0=pd.Timestamp(weather.hour_start[0]), dt_s=dt_s, nominal=nominal,
                        sampled=sampled_series, lwc=lwc, lwc_s=lwc_s, rho=rho, blocked=blocked, kw=kw,
                        albedo_s=alb, d_t=d_t, sampled_lwc=sampled, weather_source=weather.source,
@@ -194,6 +197,8 @@ def prepare_dosing(zones: pd.DataFrame, settings, agent: Agent, weather: Weather
 def dose_pass(ctx: DoseContext, spread_at_s) -> PassResult:
     """Dose one pass for the zones with a finite spread time [s from the day's origin]."""
     t = np.asarray(spread_at_s, dtype=float)
+    if ctx.groups:
+        return scatter(t.size, [(i, dose_pass(sub, t[i])) for i, sub in ctx.groups], PassResult)
     go = np.isfinite(t) & (ctx.blocked == "")
     tt = np.where(go, t, 0.0)
     nom = pass_dose(ctx.agent, ctx.nominal, tt, ctx.lwc, ctx.rho, temp_tol_k=TEMP_TOL_K,
@@ -258,13 +263,15 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
     times: list[list[str]] = [[] for _ in range(nz)]
     held_until = np.full(nz, np.nan)
     first = passes[0][1] if passes else None
+    pz = per_zone(ctx)
+    names = pz["agent"]
     for slot, r in passes:
         got = np.isfinite(r.spread_at_s) & (r.dose_g_m2 > 0)
         spread = ctx.timestamp(r.spread_at_s)
         hf = ctx.timestamp(r.hard_from_s)
         hu = ctx.timestamp(np.where(np.isinf(r.hard_until_s), np.nan, r.hard_until_s))
         for i in np.flatnonzero(got):
-            rows.append({"zone_id": int(ids[i]), "pass_no": int(count[i] + 1), "slot": slot.label,
+            rows.append({"zone_id": int(ids[i]), "pass_no": int(count[i] + 1), "slot": slot.label, "agent": names[i],
                          "spread_at": spread[i], "dose_g_m2": float(r.dose_g_m2[i]),
                          "dose_p90_g_m2": float(r.dose_p90_g_m2[i]),
                          "product_kg": float(r.dose_g_m2[i] * area[i] / 1000.0),
@@ -279,7 +286,7 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
             biggest[i] = max(biggest[i], r.dose_g_m2[i])
             times[i].append(_hhmm(spread[i]))
             held_until[i] = r.hard_until_s[i]
-    table = pd.DataFrame(rows, columns=["zone_id", "pass_no", "slot", "spread_at", "dose_g_m2", "dose_p90_g_m2",
+    table = pd.DataFrame(rows, columns=["zone_id", "pass_no", "slot", "agent", "spread_at", "dose_g_m2", "dose_p90_g_m2",
                                         "product_kg", "product_p90_kg", "sub_passes", "hard_from", "hard_until",
                                         "held_to_day_end", "layer_temp_c", "layer_temp_off"])
     # verdicts
@@ -313,8 +320,6 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
         short = np.maximum(short, soft)
     treated = np.isin(verdict.astype(str), TREATED)
     short = np.where(treated, short, 0.0)
-    purity = ctx.purity
-    ag = ctx.agent
     z["verdict"] = verdict.astype(str)
     z["advice"] = [VERDICTS[v] for v in verdict]
     z["dose_g_m2"] = np.where(treated, total50, 0.0)
@@ -331,71 +336,18 @@ def finish_dosing(ctx: DoseContext, passes: list[tuple[object, PassResult]], sch
                             if first is not None else np.zeros(nz))
     z["product_kg"] = z["dose_g_m2"].to_numpy() * area / 1000.0
     z["product_p90_kg"] = z["dose_p90_g_m2"].to_numpy() * area / 1000.0
-    z["nitrogen_kg"] = z["product_kg"].to_numpy() * purity * ag.nitrogen_fraction
-    z["chloride_kg"] = z["product_kg"].to_numpy() * purity * ag.chloride_fraction
+    z["nitrogen_kg"] = z["product_kg"].to_numpy() * pz["purity"] * pz["nitrogen"]
+    z["chloride_kg"] = z["product_kg"].to_numpy() * pz["purity"] * pz["chloride"]
+    z["agent"] = pz["agent"].astype(str)
     z["brine_exit_temp_c"] = float(ds.brine_exit_temp_c)
     z["refreeze_share"] = float(ctx.kw["refreeze_share"])
     z["lwc_sampled"] = ctx.sampled_lwc
     z["weather_source"] = ctx.weather_source
-    z["dose_inputs"] = _provenance(ctx, z)
-    notes = _notes(ctx, z, table, passes, schedule, soft_by_run)
+    z["dose_inputs"] = provenance(ctx, z)
+    notes = pass_notes(ctx, z, table, passes, schedule, soft_by_run)
     day_kg = sum((r.sample_kg for _, r in passes), np.zeros(1))
     plan_p90 = float(max(np.percentile(day_kg, 90), z["product_kg"].sum())) if passes else 0.0
     return z, table, notes, plan_p90
-
-
-def _provenance(ctx: DoseContext, z: pd.DataFrame) -> list[str]:
-    ds = ctx.settings.dosing
-    out = []
-    for i in range(len(z)):
-        w = str(z["wetness"].iat[i])
-        src = str(z["snow_source"].iat[i])
-        if ctx.sampled_lwc[i]:
-            rng = class_range_text(w) if w in WETNESS_CLASSES else "?"
-            lw = f"θ {ctx.lwc[i]:.1f} % ({src}, class {w}: sampled {rng} %)"
-        else:
-            lw = f"θ {ctx.lwc[i]:.1f} % ({src})"
-        out.append(f"{lw}; ρ {ctx.rho[i]:.0f} kg/m³; sun {float(z['irradiation_wh_m2'].iat[i]):.0f} Wh/m² over "
-                   f"the day; albedo {ds.albedo:.2f} ± {ds.albedo_spread:.2f} (setting); τ {ds.tau_min:.0f} min "
-                   f"(setting, field 15–30 min); T_b {ds.brine_exit_temp_c:.1f} °C (setting), k_f "
-                   f"{ctx.kw['refreeze_share']:.2f} ({ctx.k_f_source}), depth {ds.depth_m:.3f} m; agent {ctx.agent.name} purity "
-                   f"{ctx.purity:.2f}; {int(ds.samples)} samples, seed {ds.seed}")
-    return out
-
-
-def _notes(ctx: DoseContext, z: pd.DataFrame, table: pd.DataFrame, passes, schedule, soft_by_run) -> list[str]:
-    notes = []
-    for run in schedule.runs:
-        length = (run.end - run.start).total_seconds() / 60.0
-        treated = z["verdict"].isin(TREATED).to_numpy()
-        soft = z.assign(_soft=soft_by_run[run.number])[(soft_by_run[run.number] > 0.5) & treated]
-        if not len(soft):
-            continue
-        whole = int((soft["_soft"] >= length - 0.5).sum())
-        ids = ", ".join(str(int(i)) for i in soft.sort_values("_soft", ascending=False)["zone_id"])
-        notes.append(f"not held through run {run.number} ({run.start:%H:%M}–{run.end:%H:%M}): {len(soft)} zone(s), "
-                     f"{whole} of them soft for the whole run (zones {ids}); the sun spends a pass's hold "
-                     "before the run ends, and no break is near enough to salt again")
-    off = table[table["layer_temp_off"]] if len(table) else table
-    if len(off):
-        ids = ", ".join(str(int(i)) for i in sorted(set(off["zone_id"]))[:10])
-        notes.append(f"closed-layer check: in zone(s) {ids} a pass settles more than {TEMP_TOL_K:.0f} K from "
-                     f"T_b = {ctx.settings.dosing.brine_exit_temp_c:.1f} °C in the top "
-                     f"{ctx.settings.dosing.depth_m * 100:.0f} cm: the brine spreads deeper, or T_b is off "
-                     "for this snow; a test patch settles it")
-    # keep-hard comparison: re-salting at every hold end from pass 1 to the last run's end
-    if passes and ctx.settings.dosing.compare_keep_hard:
-        t1 = passes[0][1].spread_at_s
-        end = ctx.seconds([schedule.last_end])[0]
-        go = np.isfinite(t1) & (z["verdict"].isin(TREATED).to_numpy())
-        if go.any():
-            kh = keep_hard(ctx.agent, ctx.nominal, ctx.lwc, ctx.rho, np.where(go, t1, np.inf), end, **ctx.kw)
-            kg = float(np.sum(np.where(go, np.asarray(kh.product_g_m2), 0.0) * z["area_m2"].to_numpy()) / 1000.0)
-            plan_kg = float(z["product_kg"].sum())
-            notes.append(f"keep-hard comparison: re-salting every zone each time it softens until "
-                         f"{schedule.last_end:%H:%M} would take {int(np.sum(np.where(go, kh.passes, 0)))} passes "
-                         f"and {kg:,.0f} kg (P50), against {plan_kg:,.0f} kg in this plan")
-    return notes
 
 
 def spread_pass(ctx: DoseContext, zone_index, spread_at_s, g_m2) -> PassResult:
@@ -406,9 +358,9 @@ def spread_pass(ctx: DoseContext, zone_index, spread_at_s, g_m2) -> PassResult:
     builds the rest, R_eff = min(R, (R + E_k)·D/D_k − E_k) ≥ 0 (Eq. C1 is linear in the salt), and the
     zone is hard from t + τ until the sun has re-supplied R_eff (Eq. C2).  R_eff = 0: never hardened.
     """
-    i = np.asarray(zone_index, dtype=int)
-    t = np.asarray(spread_at_s, dtype=float)
-    d = np.asarray(g_m2, dtype=float)
+    if ctx.groups:
+        return spread_by_agent(ctx, zone_index, spread_at_s, g_m2, spread_pass, PassResult)
+    i, t, d = np.asarray(zone_index, dtype=int), np.asarray(spread_at_s, dtype=float), np.asarray(g_m2, dtype=float)
     series = EnergySeries(ctx.nominal.flux_w_m2[i], ctx.dt_s)
     nom = pass_dose(ctx.agent, series, t, ctx.lwc[i], ctx.rho[i], **ctx.kw)
     need = np.asarray(nom.product_g_m2, dtype=float)
