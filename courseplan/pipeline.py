@@ -149,7 +149,7 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     import geopandas as gpd
 
     from courseplan.agents import get_agent
-    from courseplan.calibration import calibration_notes
+    from courseplan.calibration import calibration_notes, is_calibrated
     from courseplan.geo.edits import fit_to_course
     from courseplan.schedule import plan_schedule
     from courseplan.stages.conditions import assign_snow, observation_exposure
@@ -202,6 +202,9 @@ def run_plan(settings: PlanSettings, inputs: LoadedInputs, progress=None) -> Pla
     zones = _staged("edits", zres.zones, lambda z: add_edits(z, ez, inputs.catalogue))
     agents = plan_agents(zones, agent, inputs.catalogue, crew_bag_kg, settings, where=ez.source if ez else "")
     kept = [kept_note(ez, zones), *ez.notes, *fit_notes] if ez is not None else []  # lead, after a shortfall
+    if len(agents) > 1 and is_calibrated(settings):
+        kept.append(f"k_f from the test patch ({settings.calibration.agent or agent.name}) is used for the zones "
+                    f"with {', '.join(n for n in agents if n != agent.name)} too: treat a patch with that agent")
     notes += list(zres.notes)
     zones, sources = _staged("sun", zones, lambda z: zone_irradiation(z, ps))
 

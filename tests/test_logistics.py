@@ -198,6 +198,16 @@ def test_every_treated_zone_in_one_contiguous_crew_and_untreated_in_none():
     assert max(seq.count(c) for c in (1, 2, 3)) == 3
 
 
+def test_crews_split_before_dosing_keep_their_numbers_when_one_has_nothing_to_spread():
+    # the crews stage gave zones 1-2 to crew 1, 3-4 to crew 2, 5-6 to crew 3; crew 2's zones need no salt
+    # (a replan with no top-up there): crews 1 and 3 keep their numbers and their own zones
+    z = make_zones([1000.0] * 6, [30, 30, 0, 0, 30, 30.0]).assign(crew=[1, 1, 2, 2, 3, 3])
+    r = plan_logistics(z, plan_settings(crews=3), stand_in_agent())
+    assert r.crews["crew"].tolist() == [1, 3] and r.crews["label"].tolist() == ["Crew 1", "Crew 3"]
+    assert r.crews["zone_ids"].tolist() == ["1, 2", "5, 6"]
+    assert r.zones["crew"].tolist() == [1, 1, 0, 0, 3, 3]
+
+
 def test_fewer_crews_than_asked_when_fewer_zones():
     z = make_zones([500.0, 500.0], [20.0, 20.0])
     r = plan_logistics(z, plan_settings(crews=5), stand_in_agent())

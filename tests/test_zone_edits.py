@@ -232,6 +232,24 @@ def test_a_bad_edit_exits_2_with_one_line_naming_the_zones_and_writes_nothing(tr
     assert not out.exists()
 
 
+def test_the_plans_own_zones_unedited_give_the_same_plan(trip, tmp_path):
+    # the zone means move by a fraction of a percent (cells by centre against raster regions); the
+    # verdicts, the passes, the crews' rounds and the order must not move with them
+    d, base, _, _ = trip
+    res = _plan("--out", tmp_path / "o", "--zones", d / "base" / "zones.gpkg")
+    assert res.exit_code == 0, res.output
+    again = read_summary(tmp_path / "o")
+    b, a = _by_id(base), _by_id(again)
+    assert {i: r["verdict"] for i, r in a.items()} == {i: r["verdict"] for i, r in b.items()}
+    def minutes(r):
+        return [int(t[:2]) * 60 + int(t[3:]) for t in r["pass_times"].split("; ") if t]
+    for i in b:  # the same passes, each within 2 min (a pass's minutes follow its dose)
+        assert len(minutes(a[i])) == len(minutes(b[i])), i
+        assert np.allclose(minutes(a[i]), minutes(b[i]), atol=2), i
+    assert again["total_product_kg"] == pytest.approx(base["total_product_kg"], rel=0.01)
+    assert again["order"]["bags_handed_out"] == pytest.approx(base["order"]["bags_handed_out"], rel=0.02)
+
+
 OWN_ZONE = 4  # given urea in a rock-salt plan
 
 

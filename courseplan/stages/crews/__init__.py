@@ -136,12 +136,13 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
         given = zones["crew"].to_numpy()
         crew_col = np.where(treated, given, 0).astype(int)
         labels = sorted(int(c) for c in set(crew_col[t_idx]))
-        runs = []
+        runs, crew_ids = [], labels  # the crews keep their numbers, also when one has nothing to spread
         for c in labels:
             pos = np.flatnonzero(crew_col[t_idx] == c)
             runs.append((int(pos.min()), int(pos.max()) + 1))
     else:
         runs = split_contiguous(work[t_idx], lg.crews)
+        crew_ids = list(range(1, len(runs) + 1))
         crew_col = np.zeros(len(out), dtype=int)
         for c, (a, b) in enumerate(runs, start=1):
             crew_col[t_idx[a:b]] = c
@@ -186,8 +187,7 @@ def plan_crews(zones: Any, settings: PlanSettings, agent: Any, pass_table: Any =
 
     rows = []
     zone_geom = out.geometry
-    for c, ((a, b), (t_pre, t_first, before, crew_passes)) in enumerate(zip(runs, pre_race, strict=True),
-                                                                       start=1):
+    for c, (a, b), (t_pre, t_first, before, crew_passes) in zip(crew_ids, runs, pre_race, strict=True):
         idx = t_idx[a:b]
         geom = shapely.union_all(zone_geom.iloc[idx].to_numpy())
         cents = shapely.centroid(zone_geom.iloc[idx].to_numpy())

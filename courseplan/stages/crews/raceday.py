@@ -92,6 +92,11 @@ NOMINAL_DOSE_G_M2 = 40.0
 
 
 
+SUN_ORDER_STEP = 0.05
+"""Sun shares closer than this share of the sunniest zone's are one step in the order of work
+(common practice, no source: a crew tells shade, part sun and full sun apart, not 0.999 from 1)."""
+
+
 def assign_crews(zones: Any, settings: PlanSettings, bag_kg: float = 25.0) -> Any:
     """Split the zones among the crews and set each crew's order of work (the ``crews`` stage).
 
@@ -113,10 +118,15 @@ def assign_crews(zones: Any, settings: PlanSettings, bag_kg: float = 25.0) -> An
     sun = out["sun_fraction"].to_numpy(dtype=float) if "sun_fraction" in out else np.zeros(len(out))
     sun = np.where(np.isfinite(sun), sun, out["raster_irradiation_wh_m2"].to_numpy(dtype=float)
                    if "raster_irradiation_wh_m2" in out else 0.0)
+    # the order of work goes by sun in steps of 5 % of the sunniest zone, so shares a crew cannot tell
+    # apart (0.999 and 1.0) keep course order, and a re-run with a hair more sun keeps its round
+    sun = np.nan_to_num(sun)
+    step = SUN_ORDER_STEP * max(float(np.max(np.abs(sun))) if sun.size else 0.0, 1e-12)
+    sun_key = np.round(sun / step)
     for c, (a, b) in enumerate(runs, start=1):
         idx = order_idx[a:b]
         crew[idx] = c
-        key = np.lexsort((out["course_order"].to_numpy()[idx], np.nan_to_num(sun[idx])))
+        key = np.lexsort((out["course_order"].to_numpy()[idx], sun_key[idx]))
         work[idx[key]] = np.arange(1, len(idx) + 1)
     out["crew"] = crew
     out["work_order"] = work
