@@ -299,7 +299,8 @@ def test_the_sheets_and_the_map_name_the_zones_own_agent(own_agent, trip):
     label = _by_id(s)[OWN_ZONE]["label"]
     assert f"Zone {label}: urea (CO(NH2)2) from its own bags, not rock salt (NaCl)." in text("crews.pdf")
     assert "Order: urea (CO(NH2)2)" in text("order.pdf") and "Order: rock salt (NaCl)" in text("order.pdf")
-    assert "urea, chosen by the chief of course" in (out / "map.html").read_text(encoding="utf-8")
+    page = (out / "map.html").read_text(encoding="utf-8")
+    assert "urea, chosen by the chief of course" in page and f"zone {OWN_ZONE} urea (CO(NH2)2)" in page
     d = trip[0]
     assert "Order: urea" not in " ".join(p.extract_text() for p in PdfReader(d / "base" / "order.pdf").pages)
 

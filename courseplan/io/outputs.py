@@ -232,6 +232,18 @@ def write_gpkg(path: Path, result) -> None:
     pyogrio.write_dataframe(styles, path, layer="layer_styles", driver="GPKG", layer_options={"FID": "id"})
 
 
+def _agents_text(result) -> str:
+    """The plan's agent, and the zones with their own (``rock salt (NaCl); zone 4 urea (CO(NH2)2)``)."""
+    orders = result.logistics.orders or (result.logistics.order,)
+    if len(orders) < 2:
+        return result.agent.label
+    z = result.zones
+    own = [f"zone{'s' if (z['agent'] == o.agent).sum() > 1 else ''} "
+           f"{', '.join(str(int(i)) for i in z.loc[z['agent'] == o.agent, 'zone_id'])} {o.agent_label}"
+           for o in orders[1:]]
+    return f"{result.agent.label}; " + "; ".join(own)
+
+
 def write_map(path: Path, result, issue: str = "") -> None:
     """Write the offline map page (*issue*: plan version and time of issue, shown with the title)."""
     from courseplan.columns import ALL
@@ -247,7 +259,7 @@ def write_map(path: Path, result, issue: str = "") -> None:
                                   sun_max=max(sun_max, 1e-9))
     title = result.settings.plan.name + (f" — {issue}" if issue else "")
     html = render_map_html(result.zones, result.course, title=title,
-                           agent_label=result.agent.label, cautions=_leading(result),
+                           agent_label=_agents_text(result), cautions=_leading(result),
                            observations=result.observations, crews=result.logistics.crews, context=ctx,
                            start_xy=result.start_xy, finish_xy=result.finish_xy,
                            units={c.name: unit(c.name) for c in ALL},

@@ -237,9 +237,16 @@ def render_map_html(zones: geopandas.GeoDataFrame, course: geopandas.GeoDataFram
                           '<div class="note">0 (shade all window) … 1 (sun all window)</div>')
     legend.append("</div>")
     treated = sum(1 for d in doses if d is not None and d > 0)
-    total_kg = sum(float(scalar(r.get("product_kg")) or 0.0) for r in zrows)
-    summary = (f"{len(zrows)} zones, {treated} with a dose"
-               + (f"; product {total_kg:,.0f} kg (P50)".replace(",", "\u202f") if total_kg else ""))
+    by_agent: dict[str, float] = {}  # product per agent: a plan with zones of their own agent lists each
+    for r in zrows:
+        a = str(scalar(r.get("agent")) or "")
+        by_agent[a] = by_agent.get(a, 0.0) + float(scalar(r.get("product_kg")) or 0.0)
+    total_kg = sum(by_agent.values())
+    def kg(x: float) -> str:
+        return f"{x:,.0f}".replace(",", "\u202f") + " kg"
+    amounts = (", ".join(f"{kg(m)} {a}" for a, m in by_agent.items() if m > 0) if len(by_agent) > 1
+               else kg(total_kg))
+    summary = f"{len(zrows)} zones, {treated} with a dose" + (f"; product {amounts} (P50)" if total_kg else "")
     js, css = leaflet_assets()
     caution_items = "".join(f"<li>{esc(c)}</li>" for c in cautions)
     page = f"""<!DOCTYPE html>
