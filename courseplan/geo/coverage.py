@@ -122,7 +122,24 @@ def thin_test(course: BaseGeometry, min_width: float):
         w = width_m(g, coarse)
         return w if w >= min_width else width_m(g, tol)
 
+    def surely_wide(g: BaseGeometry) -> bool:
+        # A point inside the outline (``shapely.point_on_surface``, or the centroid when inside) half
+        # the width plus the tolerance from its boundary: the search above would find a circle of
+        # min_width or more, so the answer is known without it.
+        parts = np.array(_parts(g), dtype=object)
+        if not parts.size:
+            return False
+        rings = shapely.boundary(parts)
+        if float(np.max(shapely.distance(shapely.point_on_surface(parts), rings))) >= 0.5 * min_width + tol:
+            return True
+        cen = shapely.centroid(parts)
+        inside = shapely.contains(parts, cen)
+        return bool(inside.any()
+                    and np.max(shapely.distance(cen[inside], rings[inside])) >= 0.5 * min_width + tol)
+
     def thin(g: BaseGeometry) -> bool:
+        if surely_wide(g):
+            return False
         w = width(g)
         if w >= min_width:
             return False
@@ -151,15 +168,15 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
 
     from affine import Affine
     from rasterio.features import shapes
-    from scipy.ndimage import binary_dilation
 
-    from courseplan.geo.regions import polygon_parts
     from courseplan.geo.geometry import geometry_from_geojson
+    from courseplan.geo.regions import polygon_parts
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
         return zones, per_region
-    index = np.full(touch.shape, -1, dtype=np.int32)  # cell raster → position in the *_t arrays
-    index[touch] = np.arange(int(touch.sum()))
+    # Position of a course cell in the *_t arrays (row-major): the course cells of the rows above
+    # plus those to its left; computed per zone window, not for the whole course.
+    row_start = np.concatenate([[0], np.cumsum(touch.sum(axis=1))])
     inv = ~transform
     extra: dict[str, list[float]] = {k: [] for k in per_region}
     n_reg = len(next(iter(per_region.values())))
@@ -174,8 +191,10 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         cb, rb = inv * (x1, y0)
         r0, r1 = max(int(ra) - 3, 0), min(int(rb) + 4, touch.shape[0])
         c0, c1 = max(int(ca) - 3, 0), min(int(cb) + 4, touch.shape[1])
-        ids = index[r0:r1, c0:c1]
-        inside = ids >= 0
+        inside = touch[r0:r1, c0:c1]
+        ids = np.cumsum(inside, axis=1) - 1
+        ids += (row_start[r0:r1] + touch[r0:r1, :c0].sum(axis=1))[:, None]
+        ids[~inside] = -1
         sub = ids[inside]
         own = np.isin(region_t[sub], np.asarray(z["regions"]))
         n = int(math.ceil(z["geom"].area / max_area))
@@ -185,7 +204,7 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         near = np.zeros(ids.shape, dtype=bool)
         near[inside] = own
         # The zone lies within about a cell of its own cells: band only those, grown by two cells.
-        near = binary_dilation(near, iterations=2) & inside
+        near = _grow(_grow(near)) & inside
         win[near] = band_s[near[inside]]
         polys: dict[int, object] = {}
         for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
@@ -210,3 +229,16 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
             out.append({**z, "geom": geom, "regions": regions, "weights": weights})
     grown = {k: np.concatenate([v, np.asarray(extra[k], dtype=float)]) for k, v in per_region.items()}
     return out, grown
+
+
+def _grow(m: np.ndarray) -> np.ndarray:
+    """Grow *m* by one cell to its four neighbours.
+
+    The same as ``scipy.ndimage.binary_dilation`` with the cross, in five numpy operations.
+    """
+    out = m.copy()
+    out[1:] |= m[:-1]
+    out[:-1] |= m[1:]
+    out[:, 1:] |= m[:, :-1]
+    out[:, :-1] |= m[:, 1:]
+    return out

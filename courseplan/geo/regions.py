@@ -80,13 +80,17 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
     if n_reg < 2:
         return region, n_reg
     cw, ch = grid.cell_size
-    area = np.bincount(region[touch], minlength=n_reg + 1).astype(np.float64) * (cw * ch)
+    region_t = region[touch]
+    area = np.bincount(region_t, minlength=n_reg + 1).astype(np.float64) * (cw * ch)
     if not (area[1:] < min_area).any():
         return region, n_reg
     pair_parts, len_parts = [], []
     for a, b, side in ((region[:, :-1], region[:, 1:], ch), (region[:-1, :], region[1:, :], cw)):
-        m = (a != b) & (a > 0) & (b > 0)
-        lo, hi = np.minimum(a[m], b[m]).astype(np.int64), np.maximum(a[m], b[m]).astype(np.int64)
+        m = a != b
+        a, b = a[m], b[m]  # the few cell sides between two regions, then those inside the course
+        m = (a > 0) & (b > 0)
+        a, b = a[m], b[m]
+        lo, hi = np.minimum(a, b).astype(np.int64), np.maximum(a, b).astype(np.int64)
         pair_parts.append(lo * (n_reg + 1) + hi)
         len_parts.append(np.full(lo.size, side))
     keys, inv = np.unique(np.concatenate(pair_parts), return_inverse=True)
@@ -97,7 +101,7 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
         nb[i][j] = nb[i].get(j, 0.0) + length
         nb[j][i] = nb[j].get(i, 0.0) + length
     reg_code = np.zeros(n_reg + 1, dtype=np.int64)
-    reg_code[region[touch]] = code[touch]
+    reg_code[region_t] = code[touch]
     key = [code_key(c, n_exp, n_slope) for c in reg_code.tolist()]
     alive = np.ones(n_reg + 1, dtype=bool)
     alive[0] = False
@@ -144,7 +148,7 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
     lut[survivors] = np.arange(1, survivors.size + 1, dtype=np.int32)
     lut = lut[target]
     lut[0] = 0
-    return lut[region], int(survivors.size)
+    return np.take(lut, region), int(survivors.size)
 
 
 
