@@ -167,10 +167,8 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
     import math
 
     from affine import Affine
-    from rasterio.features import shapes
 
-    from courseplan.geo.geometry import geometry_from_geojson
-    from courseplan.geo.regions import polygon_parts
+    from courseplan.geo.regions import polygon_parts, polygonise
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
         return zones, per_region
@@ -206,10 +204,7 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         # The zone lies within about a cell of its own cells: band only those, grown by two cells.
         near = _grow(_grow(near)) & inside
         win[near] = band_s[near[inside]]
-        polys: dict[int, object] = {}
-        for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
-            g = geometry_from_geojson(gj)
-            polys[int(v)] = shapely.union(polys[int(v)], g) if int(v) in polys else g
+        polys = polygonise(win, transform @ Affine.translation(c0, r0))
         keys = sorted(polys)
         smooth, _ = smooth_coverage(np.array([polys[k] for k in keys], dtype=object), tolerance)
         for k, bp in zip(keys, smooth, strict=True):

@@ -34,12 +34,10 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
-import shapely
 from shapely.geometry.base import BaseGeometry
 
 from courseplan.columns import check_stage
 from courseplan.geo.coverage import ensure_tiling, smooth_coverage, split_large_zones, thin_test
-from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.regions import (
     clip_to,
     code_key,
@@ -48,6 +46,7 @@ from courseplan.geo.regions import (
     merge_small_pieces,
     merge_small_regions,
     polygon_parts,
+    polygonise,
 )
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
@@ -256,7 +255,7 @@ def zone_given(inp: ZoningInputs, settings: Zoning, geoms, ids, labels=None, *, 
 
 def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                  max_uncovered_pct: float) -> ZoningResult:
-    from rasterio.features import shapes, sieve
+    from rasterio.features import sieve
 
     c = course_cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
     touch, ct, cgrid, rows, vt, notes, n_exp = c.touch, c.ct, c.cgrid, c.rows, c.vt, c.notes, c.n_exp
@@ -299,11 +298,7 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
 
     # One polygon per region (each region is 4-connected).  The region polygons are a coverage
     # (edge-matched, from one raster): smooth their shared edges as one, then clip to the exact course.
-    polys: dict[int, BaseGeometry] = {}
-    for gj, val in shapes(region, mask=region > 0, connectivity=4, transform=ct):
-        r = int(val)
-        g = geometry_from_geojson(gj)
-        polys[r] = shapely.union(polys[r], g) if r in polys else g
+    polys = polygonise(region, ct)
     reg_ids = sorted(polys)
     raw, smoothed = smooth_coverage(np.array([polys[r] for r in reg_ids], dtype=object), max(cgrid.cell_size))
     if len(reg_ids) > 1 and not smoothed:
