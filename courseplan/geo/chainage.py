@@ -14,6 +14,7 @@ import numpy as np
 import shapely
 from shapely.geometry.base import BaseGeometry
 
+from courseplan.geo.geometry import in_chunks
 from courseplan.grid import Grid
 
 LATTICE_STEP_M = 8.0
@@ -36,9 +37,9 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
 
     ``shapely.line_locate_point`` (GEOS linear referencing) is evaluated on a lattice of about *step_m*
     around the cells only, and interpolated bilinearly in between: on a 1 m grid that is about 40×
-    fewer projections.  When the cells are coarser than *step_m* every cell is projected exactly.
-    The interpolation is :func:`_bilinear` (the lattice first refined along its columns, then two
-    ``numpy.take`` per cell).
+    fewer projections (on all cores, :func:`~courseplan.geo.geometry.in_chunks`).  When the cells are
+    coarser than *step_m* every cell is projected exactly.  The interpolation is :func:`_bilinear`
+    (the lattice first refined along its columns, then two ``numpy.take`` per cell).
     """
     cw, ch = grid.cell_size
     s = max(1, int(step_m // max(cw, ch)))
@@ -63,7 +64,9 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
     # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
     margin = 2.0 * s * max(cw, ch)
     lat = np.zeros(need.shape)
-    lat[ni, nj] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
+    longer = _prolong(line, margin)
+    pos = in_chunks(lambda px, py: shapely.line_locate_point(longer, shapely.points(px, py)), x, y)
+    lat[ni, nj] = pos - margin
     # Bilinear interpolation between the four lattice nodes around each cell (all of them computed).
     d = _bilinear(lat, s, rows - r0 * s, cols - c0 * s, br - r0)
     return np.clip(d, 0.0, line.length)

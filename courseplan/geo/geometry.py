@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import shapely
 from shapely.errors import GEOSException
@@ -64,3 +66,33 @@ def clean_polygon(geom: BaseGeometry, grid_size: float) -> BaseGeometry:
     if len(parts) == 1 and geom.geom_type != "MultiPolygon":
         return parts[0]
     return shapely.multipolygons(parts)  # a multipolygon stays one, even with one part left
+
+
+WORKERS = max(1, min(4, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else
+                       (os.cpu_count() or 1)))
+"""Threads for :func:`in_chunks` (the cores this process may run on, at most 4)."""
+
+_POOL: list = []
+
+
+def in_chunks(fn, *arrays: np.ndarray, min_items: int = 16) -> np.ndarray:
+    """Return ``fn(*arrays)``, computed on :data:`WORKERS` contiguous chunks of the arrays at once.
+
+    For element-wise vectorised shapely functions (``shapely.intersection``,
+    ``shapely.line_locate_point``, ``shapely.maximum_inscribed_circle`` …): GEOS releases the GIL,
+    so the chunks run on several cores in threads (``concurrent.futures.ThreadPoolExecutor``), and
+    the result, concatenated in order, is element for element that of one call.  Fewer than
+    *min_items* elements, or one core, and it is one call.
+    """
+    n = len(arrays[0])
+    if WORKERS < 2 or n < min_items:
+        return fn(*arrays)
+    if not _POOL:
+        from concurrent.futures import ThreadPoolExecutor
+
+        _POOL.append(ThreadPoolExecutor(max_workers=WORKERS - 1, thread_name_prefix="courseplan-geos"))
+    edges = np.linspace(0, n, WORKERS + 1).astype(np.int64)
+    parts = [tuple(a[edges[i]:edges[i + 1]] for a in arrays) for i in range(WORKERS)]
+    futures = [_POOL[0].submit(fn, *p) for p in parts[:-1]]
+    last = fn(*parts[-1])
+    return np.concatenate([f.result() for f in futures] + [np.asarray(last)])

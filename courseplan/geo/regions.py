@@ -39,17 +39,23 @@ def clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
 
     Polygons that lie inside the course are kept as they are (``contains_properly`` on the
     prepared course); for the others the overlay runs against the course clipped to the polygon's
-    bounding box (``clip_by_rect``), not against the whole course outline.
+    bounding box (``clip_by_rect``), not against the whole course outline, on all cores
+    (:func:`~courseplan.geo.geometry.in_chunks`).
     """
+    from courseplan.geo.geometry import in_chunks
+
     out = polys.copy()
     shapely.prepare(course)
     cut = ~shapely.contains_properly(course, polys)
-    if cut.any():
-        b = shapely.bounds(polys[cut])
+
+    def clip(p: np.ndarray, b: np.ndarray) -> np.ndarray:
         local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
         bad = ~shapely.is_valid(local)
         local[bad] = course
-        out[cut] = shapely.intersection(polys[cut], local)
+        return shapely.intersection(p, local)
+
+    if cut.any():
+        out[cut] = in_chunks(clip, polys[cut], shapely.bounds(polys[cut]))
     return out
 
 
@@ -225,7 +231,14 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
     def flagged(z: dict) -> bool:
         return z["geom"].area < min_area or (thin is not None and bool(thin(z["geom"])))
 
-    flag = {i for i, z in enumerate(zones) if flagged(z)}
+    small = np.array([z["geom"].area < min_area for z in zones], dtype=bool)
+    if thin is not None and hasattr(thin, "many") and not small.all():
+        # The same flags as flagged(), the slivers tested in one vectorised pass.
+        big = np.flatnonzero(~small)
+        small[big] = thin.many([zones[i]["geom"] for i in big.tolist()])
+        flag = set(np.flatnonzero(small).tolist())
+    else:
+        flag = {i for i, z in enumerate(zones) if flagged(z)}
     while flag:
         i = min(flag, key=lambda j: (zones[j]["geom"].area, j))
         flag.discard(i)
