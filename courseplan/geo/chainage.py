@@ -64,8 +64,13 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
     # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
     margin = 2.0 * s * max(cw, ch)
     lat = np.zeros(need.shape)
-    longer = _prolong(line, margin)
-    pos = in_chunks(lambda px, py: shapely.line_locate_point(longer, shapely.points(px, py)), x, y)
+    wkb = shapely.to_wkb(_prolong(line, margin))
+
+    def locate(px: np.ndarray, py: np.ndarray) -> np.ndarray:
+        # Each chunk its own copy of the line: GEOS geometries are not safe to share between threads.
+        return shapely.line_locate_point(shapely.from_wkb(wkb), shapely.points(px, py))
+
+    pos = in_chunks(locate, x, y)
     lat[ni, nj] = pos - margin
     # Bilinear interpolation between the four lattice nodes around each cell (all of them computed).
     d = _bilinear(lat, s, rows - r0 * s, cols - c0 * s, br - r0)
@@ -92,14 +97,19 @@ def _bilinear(lat: np.ndarray, s: int, r: np.ndarray, c: np.ndarray, i: np.ndarr
     h, nw = lat.shape
     wc = (nw - 1) * s
     fine = (lat[:, :-1, None] * (1.0 - w) + lat[:, 1:, None] * w).reshape(h, wc).ravel()
-    idx = i.astype(np.intp) * wc + c  # numpy.take is fastest with intp indices
-    top = np.take(fine, idx)
-    idx += wc
-    d = np.take(fine, idx)
-    d -= top
-    d *= np.take(w, (r - i * s).astype(np.intp))
-    d += top
-    return d
+
+    def cells(r: np.ndarray, c: np.ndarray, i: np.ndarray) -> np.ndarray:
+        idx = i.astype(np.intp) * wc + c  # numpy.take is fastest with intp indices
+        top = np.take(fine, idx)
+        idx += wc
+        d = np.take(fine, idx)
+        d -= top
+        d *= (r - i * s) / s  # = w[r % s], the same division
+        d += top
+        return d
+
+    # numpy releases the GIL in these loops: the cells in chunks on all cores.
+    return in_chunks(cells, r, c, i, min_items=20_000)
 
 
 

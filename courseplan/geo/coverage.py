@@ -73,8 +73,10 @@ def smooth_coverage(polys: np.ndarray, tolerance: float) -> tuple[np.ndarray, bo
     """
     if polys.size < 2 or tolerance <= 0:
         return polys, False
+    from courseplan.geo.geometry import in_chunks
+
     simp = shapely.coverage_simplify(polys, tolerance, simplify_boundary=False)
-    if shapely.is_empty(simp).any() or (~shapely.is_valid(simp)).any():
+    if shapely.is_empty(simp).any() or (~in_chunks(shapely.is_valid, simp)).any():
         return polys, False
     return simp, True
 
@@ -196,14 +198,17 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
     The cut follows the distance field: the window's course cells are banded at the quantiles,
     the bands polygonised (``rasterio.features.shapes``) and smoothed as one coverage
     (:func:`~courseplan.geo.coverage.smooth_coverage`, *tolerance* [m]), and the zone intersected
-    with each band, so the parts tile the zone.  Each part gets a new pseudo-region whose values are
-    the means of *cells* (one array per name, a value per course cell in *touch* order) over its own
-    cells, appended to *per_region*; returns the zones and the extended *per_region*.
+    with each band, so the parts tile the zone (that GEOS work on another core while the next zone
+    is polygonised, :func:`~courseplan.geo.geometry.in_background`).  Each part gets a new
+    pseudo-region whose values are the means of *cells* (one array per name, a value per course
+    cell in *touch* order) over its own cells, appended to *per_region*; returns the zones and the
+    extended *per_region*.
     """
     import math
 
     from affine import Affine
 
+    from courseplan.geo.geometry import in_background
     from courseplan.geo.regions import polygon_parts, polygonise
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
@@ -214,10 +219,9 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
     inv = ~transform
     extra: dict[str, list[float]] = {k: [] for k in per_region}
     n_reg = len(next(iter(per_region.values())))
-    out = []
-    for z in zones:
+    tasks = {}  # zone index → (own cells, their band, band numbers, the cut job)
+    for j, z in enumerate(zones):
         if z["geom"].area <= max_area:
-            out.append(z)
             continue
         # Only the zone's bounding box of cells (plus 3), as flat course cells.
         x0, y0, x1, y1 = z["geom"].bounds
@@ -242,14 +246,21 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         win[near] = band_s[near[inside]]
         polys = polygonise(win, transform @ Affine.translation(c0, r0))
         keys = sorted(polys)
-        smooth, _ = smooth_coverage(np.array([polys[k] for k in keys], dtype=object), tolerance)
-        for k, bp in zip(keys, smooth, strict=True):
-            part = shapely.intersection(z["geom"], shapely.clip_by_rect(bp, x0, y0, x1, y1))
+        # Smoothing and cutting are GEOS work: on another core while the next zone is polygonised.
+        tasks[j] = (sub[own], band_s[own], keys,
+                    in_background(_cut, z["geom"], (x0, y0, x1, y1), [polys[k] for k in keys], tolerance))
+    out = []
+    for j, z in enumerate(zones):
+        if j not in tasks:
+            out.append(z)
+            continue
+        mine_all, band_own, keys, job = tasks[j]
+        for k, part in zip(keys, job.result(), strict=True):
             parts = polygon_parts(part)
             if not parts or part.area <= 0:
                 continue
             geom = parts[0] if len(parts) == 1 else shapely.multipolygons(parts)
-            mine = sub[own & (band_s == k)]
+            mine = mine_all[band_own == k]
             if mine.size:
                 for name, arr in cells.items():
                     extra[name].append(float(np.mean(arr[mine])))
@@ -260,6 +271,13 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
             out.append({**z, "geom": geom, "regions": regions, "weights": weights})
     grown = {k: np.concatenate([v, np.asarray(extra[k], dtype=float)]) for k, v in per_region.items()}
     return out, grown
+
+
+def _cut(zone: BaseGeometry, bounds: tuple, bands: list, tolerance: float) -> list:
+    """Smooth a zone's bands as one coverage, intersect the zone with each (:func:`split_large_zones`)."""
+    x0, y0, x1, y1 = bounds
+    smooth, _ = smooth_coverage(np.array(bands, dtype=object), tolerance)
+    return [shapely.intersection(zone, shapely.clip_by_rect(bp, x0, y0, x1, y1)) for bp in smooth]
 
 
 def _grow(m: np.ndarray) -> np.ndarray:

@@ -48,10 +48,15 @@ def clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
     shapely.prepare(course)
     cut = ~shapely.contains_properly(course, polys)
 
+    wkb = shapely.to_wkb(course)
+
     def clip(p: np.ndarray, b: np.ndarray) -> np.ndarray:
-        local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
+        # Each chunk reads its own copy of the course: GEOS geometries are not safe to share
+        # between threads (a shared, prepared course crashed).
+        mine = shapely.from_wkb(wkb)
+        local = np.array([shapely.clip_by_rect(mine, *bb) for bb in b], dtype=object)
         bad = ~shapely.is_valid(local)
-        local[bad] = course
+        local[bad] = mine
         return shapely.intersection(p, local)
 
     if cut.any():

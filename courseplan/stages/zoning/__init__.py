@@ -292,9 +292,15 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         r_sec = mean(1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))))
     else:
         r_slope, r_sec = np.zeros(nreg), np.ones(nreg)
-    a_sin = np.sin(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
-    a_cos = np.cos(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
-    r_asin, r_acos = mean(a_sin), mean(a_cos)
+    def const(v: float) -> np.ndarray:  # the same value for every cell, without the memory
+        return np.broadcast_to(np.float64(v), (vt.size,))
+
+    if aspect_t is not None:
+        a_sin, a_cos = np.sin(np.radians(aspect_t)), np.cos(np.radians(aspect_t))
+        r_asin, r_acos = mean(a_sin), mean(a_cos)
+    else:  # no aspect: NaN for every cell and so for every region
+        a_sin = a_cos = const(np.nan)
+        r_asin, r_acos = np.full(nreg, np.nan), np.full(nreg, np.nan)
 
     # One polygon per region (each region is 4-connected).  The region polygons are a coverage
     # (edge-matched, from one raster): smooth their shared edges as one, then clip to the exact course.
@@ -315,10 +321,10 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                           list(settings.slope_breaks_deg) if slope_t is not None else None)
     # Zones too big for one crew in one window: cut across the course (the parts get their own means).
     cap = max(settings.max_zone_area_m2, 2.0 * settings.min_zone_area_m2) if settings.max_zone_area_m2 > 0 else 0
-    secant_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else np.ones(vt.size)
+    secant_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else const(1.0)
     merged, rv = split_large_zones(
         merged, cap, region_t, dist_t, touch, ct, max(cgrid.cell_size),
-        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else np.zeros(vt.size), "sec": secant_t,
+        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else const(0.0), "sec": secant_t,
          "asin": a_sin, "acos": a_cos},
         {"sun": r_sun, "dist": r_dist, "slope": r_slope, "sec": r_sec, "asin": r_asin, "acos": r_acos})
     r_sun, r_dist, r_slope, r_sec = rv["sun"], rv["dist"], rv["slope"], rv["sec"]
