@@ -94,11 +94,12 @@ def _serial() -> bool:
 
 
 def _pool():
-    if not _POOL:
+    # One pool per process: a pool inherited through fork has no threads, so a child makes its own.
+    if not _POOL or _POOL[0][0] != os.getpid():
         from concurrent.futures import ThreadPoolExecutor
 
-        _POOL.append(ThreadPoolExecutor(max_workers=WORKERS - 1, thread_name_prefix=_PREFIX))
-    return _POOL[0]
+        _POOL[:] = [(os.getpid(), ThreadPoolExecutor(max_workers=WORKERS - 1, thread_name_prefix=_PREFIX))]
+    return _POOL[0][1]
 
 
 def in_background(fn, *args):
