@@ -412,3 +412,87 @@ def test_a_zone_too_big_for_one_crew_is_cut_across_the_course():
                       Zoning(section_length_m=1000.0, min_zone_area_m2=100.0, max_zone_area_m2=0.0),
                       window_hours=3.0)
     assert off.n_zones == 1
+
+
+# ---- the speed-ups give the same answers as the plain computations they replace ----------------
+
+def test_in_chunks_is_one_call_element_for_element():
+    from courseplan.geo.geometry import in_chunks
+
+    rng = np.random.default_rng(5)
+    line = LineString(rng.random((40, 2)) * 100)
+    wkb = shapely.to_wkb(line)
+    x, y = rng.random(500) * 100, rng.random(500) * 100
+    def locate(px, py):  # each chunk its own copy of the line
+        return shapely.line_locate_point(shapely.from_wkb(wkb), shapely.points(px, py))
+
+    chunked = in_chunks(locate, x, y)
+    assert (chunked == shapely.line_locate_point(line, shapely.points(x, y))).all()
+
+
+def test_lattice_interpolation_equals_map_coordinates():
+    # _bilinear (refined lattice + numpy.take) against scipy's bilinear map_coordinates, and the lattice
+    # blocks from the coarse mask against those counted from the cells.
+    from scipy.ndimage import map_coordinates
+
+    from courseplan.geo import chainage
+
+    rng = np.random.default_rng(7)
+    mask = rng.random((300, 90)) < 0.4
+    rows, cols = np.nonzero(mask)
+    for s in (3, 8):
+        br, bc = rows // s, cols // s
+        lat = rng.random((int(br.max()) + 2, int(bc.max()) + 2)) * 1000
+        got = chainage._bilinear(lat, s, rows, cols, br)
+        ref = map_coordinates(lat, [rows / s, cols / s], order=1, mode="nearest", prefilter=False)
+        assert np.abs(got - ref).max() < 1e-9
+    grid = Grid(values=np.zeros(mask.shape, np.float32), transform=Affine(0.5, 0, 10.0, 0, -0.5, 500.0),
+                crs=CRS32632, source="synthetic")
+    line = LineString([(10, 500), (55, 350)])
+    cm = np.zeros((rows.max() // 4 + 1, cols.max() // 4 + 1), dtype=bool)
+    cm[rows // 4, cols // 4] = True
+    assert (chainage._locate_on_line(line, rows, cols, grid, step_m=4.0, coarse=(cm, 4))
+            == chainage._locate_on_line(line, rows, cols, grid, step_m=4.0)).all()
+
+
+def test_sliver_test_for_many_equals_one_by_one():
+    from courseplan.geo.coverage import thin_test, width_m
+
+    course = LineString([(0, 0), (200, 60), (400, 0)]).buffer(20)
+    thin = thin_test(course, 15.0)
+    rng = np.random.default_rng(11)
+    zones = [course.intersection(box(x, -30, x + w, 90)) for x, w in zip(rng.uniform(0, 380, 25),
+                                                                         rng.uniform(2, 60, 25), strict=True)]
+    zones.append(shapely.MultiPolygon([box(0, 0, 5, 40), box(10, 0, 40, 40)]))
+    many = thin.many(zones)
+
+    def one_by_one(g):  # the plain rule: largest inscribed circle, capped at half the local course width
+        w = width_m(g, 15.0 / 4)
+        w = w if w >= 15.0 else width_m(g, 0.15)
+        if w >= 15.0:
+            return False
+        x0, y0, x1, y1 = g.bounds
+        local = shapely.clip_by_rect(course, x0 - 15, y0 - 15, x1 + 15, y1 + 15)
+        wl = width_m(local, 15.0 / 4)
+        wl = wl if wl >= 15.0 else width_m(local, 0.15)
+        return w < min(15.0, 0.5 * wl)
+
+    assert list(many) == [one_by_one(g) for g in zones]
+    assert any(many) and not all(many)
+
+
+def test_polygonise_equals_the_geojson_polygons():
+    from rasterio.features import shapes
+
+    from courseplan.geo.geometry import geometry_from_geojson
+    from courseplan.geo.regions import polygonise
+
+    rng = np.random.default_rng(2)
+    labels = (rng.random((60, 80)) * 4).astype(np.int32)
+    t = Affine(2.0, 0, -7.5, 0, -2.0, 30.25)
+    ref: dict = {}
+    for gj, v in shapes(labels, mask=labels > 0, connectivity=4, transform=t):
+        g = geometry_from_geojson(gj)
+        ref[int(v)] = shapely.union(ref[int(v)], g) if int(v) in ref else g
+    got = polygonise(labels, t)
+    assert sorted(got) == sorted(ref) and all(got[k].equals_exact(ref[k], 0) for k in ref)

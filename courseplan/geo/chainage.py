@@ -14,6 +14,7 @@ import numpy as np
 import shapely
 from shapely.geometry.base import BaseGeometry
 
+from courseplan.geo.geometry import in_chunks
 from courseplan.grid import Grid
 
 LATTICE_STEP_M = 8.0
@@ -31,27 +32,40 @@ def cell_xy(grid: Grid, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray,
 
 
 def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid: Grid,
-                    step_m: float = LATTICE_STEP_M) -> np.ndarray:
+                    step_m: float = LATTICE_STEP_M,
+                    coarse: tuple[np.ndarray, int] | None = None) -> np.ndarray:
     """Position along *line* [m] of the centres of cells (rows, cols).
 
     ``shapely.line_locate_point`` (GEOS linear referencing) is evaluated on a lattice of about *step_m*
     around the cells only, and interpolated bilinearly in between: on a 1 m grid that is about 40×
-    fewer projections.  When the cells are coarser than *step_m* every cell is projected exactly.
+    fewer projections (on all cores, :func:`~courseplan.geo.geometry.in_chunks`).  When the cells are
+    coarser than *step_m* every cell is projected exactly.  The interpolation is :func:`_bilinear`
+    (the lattice first refined along its columns, then two ``numpy.take`` per cell).  *coarse*, the
+    cells' blocks of k × k cells as a mask (``mask[rows // k, cols // k]``), when k divides the
+    lattice step, gives the lattice blocks that hold cells without another pass over the cells.
     """
     cw, ch = grid.cell_size
     s = max(1, int(step_m // max(cw, ch)))
     if s == 1 or rows.size < 256:
         x, y = cell_xy(grid, rows, cols)
         return shapely.line_locate_point(line, shapely.points(x, y))
-    from scipy.ndimage import map_coordinates
-
-    br, bc = rows // s, cols // s
-    r0, c0 = int(br.min()), int(bc.min())
-    width = int(bc.max()) - c0 + 2
-    height = int(br.max()) - r0 + 2
-    # Lattice blocks holding cells (bincount: much faster than fancy-index assignment), and the
-    # nodes at their four corners.
-    hit = (np.bincount((br - r0) * width + (bc - c0), minlength=height * width) > 0).reshape(height, width)
+    rows, cols = _small_int(rows), _small_int(cols)
+    br = rows // s
+    # Lattice blocks holding cells, and the nodes at their four corners.
+    if coarse is not None and s % coarse[1] == 0:
+        blocks = _any_blocks(coarse[0], s // coarse[1])  # blocks of blocks: the same blocks, cheaply
+        rr, cc = np.flatnonzero(blocks.any(axis=1)), np.flatnonzero(blocks.any(axis=0))
+        r0, c0 = int(rr[0]), int(cc[0])
+        height, width = int(rr[-1]) - r0 + 2, int(cc[-1]) - c0 + 2
+        hit = np.zeros((height, width), dtype=bool)
+        hit[:-1, :-1] = blocks[r0:r0 + height - 1, c0:c0 + width - 1]
+    else:
+        bc = cols // s
+        r0, c0 = int(br.min()), int(bc.min())
+        width = int(bc.max()) - c0 + 2
+        height = int(br.max()) - r0 + 2
+        # bincount: much faster than fancy-index assignment
+        hit = np.bincount((br - r0) * width + (bc - c0), minlength=height * width).reshape(height, width) > 0
     need = hit.copy()
     need[1:, :] |= hit[:-1, :]
     need[:, 1:] |= hit[:, :-1]
@@ -62,10 +76,60 @@ def _locate_on_line(line: BaseGeometry, rows: np.ndarray, cols: np.ndarray, grid
     # ends of the line, so project on the line prolonged by a margin and clamp afterwards.
     margin = 2.0 * s * max(cw, ch)
     lat = np.zeros(need.shape)
-    lat[ni, nj] = shapely.line_locate_point(_prolong(line, margin), shapely.points(x, y)) - margin
+    wkb = shapely.to_wkb(_prolong(line, margin))
+
+    def locate(px: np.ndarray, py: np.ndarray) -> np.ndarray:
+        # Each chunk its own copy of the line: GEOS geometries are not safe to share between threads.
+        return shapely.line_locate_point(shapely.from_wkb(wkb), shapely.points(px, py))
+
+    pos = in_chunks(locate, x, y)
+    lat[ni, nj] = pos - margin
     # Bilinear interpolation between the four lattice nodes around each cell (all of them computed).
-    d = map_coordinates(lat, [rows / s - r0, cols / s - c0], order=1, mode="nearest", prefilter=False)
+    d = _bilinear(lat, s, rows - r0 * s, cols - c0 * s, br - r0)
     return np.clip(d, 0.0, line.length)
+
+
+def _any_blocks(mask: np.ndarray, f: int) -> np.ndarray:
+    """Return *mask* reduced by ``any`` over blocks of f × f (the last blocks padded with False)."""
+    h, w = mask.shape
+    pad = np.zeros((-(-h // f) * f, -(-w // f) * f), dtype=bool)
+    pad[:h, :w] = mask
+    return pad.reshape(pad.shape[0] // f, f, pad.shape[1] // f, f).any(axis=(1, 3))
+
+
+def _small_int(a: np.ndarray) -> np.ndarray:
+    """Return *a* as int32 when its values fit (numpy divides int32 several times faster than int64)."""
+    a = np.asarray(a)
+    if a.dtype == np.int32 or a.size == 0:
+        return a
+    return a.astype(np.int32) if -2**31 < int(a.min()) and int(a.max()) < 2**31 - 1 else a
+
+
+def _bilinear(lat: np.ndarray, s: int, r: np.ndarray, c: np.ndarray, i: np.ndarray) -> np.ndarray:
+    """Interpolate *lat*, a lattice with nodes every *s* cells, bilinearly at cells (r, c).
+
+    Rows and columns count from the lattice's first node, *i* = r // s; the cells must lie inside
+    its last row and column.  The lattice is first refined along its columns to every cell (a few
+    times fewer values than the cells), then each cell is interpolated between the two refined
+    values above and below it (``numpy.take``).
+    """
+    w = np.arange(s) / s
+    h, nw = lat.shape
+    wc = (nw - 1) * s
+    fine = (lat[:, :-1, None] * (1.0 - w) + lat[:, 1:, None] * w).reshape(h, wc).ravel()
+
+    def cells(r: np.ndarray, c: np.ndarray, i: np.ndarray) -> np.ndarray:
+        idx = i.astype(np.intp) * wc + c  # numpy.take is fastest with intp indices
+        top = np.take(fine, idx)
+        idx += wc
+        d = np.take(fine, idx)
+        d -= top
+        d *= (r - i * s) / s  # = w[r % s], the same division
+        d += top
+        return d
+
+    # numpy releases the GIL in these loops: the cells in chunks on all cores.
+    return in_chunks(cells, r, c, i, min_items=20_000)
 
 
 
@@ -131,6 +195,7 @@ def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: 
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import dijkstra
 
+    rows, cols = _small_int(rows), _small_int(cols)
     k = max(1, int(math.ceil(math.sqrt(rows.size / max_nodes))))
     cm = np.zeros((int(rows.max()) // k + 1, int(cols.max()) // k + 1), dtype=bool)
     cm[rows // k, cols // k] = True
@@ -205,12 +270,26 @@ def distance_of_cells(rows: np.ndarray, cols: np.ndarray, grid: Grid, start_xy: 
         coords = [start] + coords
     if len(coords) < 2:
         coords = [start, finish]
-    px, py = cell_xy(grid, rows, cols)
+    px, py = cell_xy(grid, *_row_ends(rows, cols))
     coords = _extend_ends(coords, px, py, extend_start=start_xy is None)
     line = shapely.LineString(coords).simplify(0.5 * max(cw, ch))
     start, finish = coords[0], coords[-1]
-    return _locate_on_line(line, rows, cols, grid), start, finish, notes
+    return _locate_on_line(line, rows, cols, grid, coarse=(cm, k)), start, finish, notes
 
+
+
+def _row_ends(rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return the first and last cell of each row of cells (rows, cols) in row order, else all of them.
+
+    Row order is the order ``numpy.nonzero`` gives.  A linear function of a cell's centre takes its
+    largest value over a row at one of the row's two ends, so :func:`_extend_ends` needs only these.
+    """
+    if rows.size < 2 or not bool((rows[1:] >= rows[:-1]).all()):
+        return rows, cols
+    first = np.concatenate(([0], np.flatnonzero(rows[1:] != rows[:-1]) + 1))
+    r = rows[first]
+    return (np.concatenate([r, r]),
+            np.concatenate([np.minimum.reduceat(cols, first), np.maximum.reduceat(cols, first)]))
 
 
 def _extend_ends(coords: list[tuple[float, float]], px: np.ndarray, py: np.ndarray,

@@ -73,8 +73,10 @@ def smooth_coverage(polys: np.ndarray, tolerance: float) -> tuple[np.ndarray, bo
     """
     if polys.size < 2 or tolerance <= 0:
         return polys, False
+    from courseplan.geo.geometry import in_chunks
+
     simp = shapely.coverage_simplify(polys, tolerance, simplify_boundary=False)
-    if shapely.is_empty(simp).any() or (~shapely.is_valid(simp)).any():
+    if shapely.is_empty(simp).any() or (~in_chunks(shapely.is_valid, simp)).any():
         return polys, False
     return simp, True
 
@@ -107,29 +109,82 @@ def thin_test(course: BaseGeometry, min_width: float):
     """A predicate *zone → bool*: True when the zone is a sliver narrower than *min_width* [m].
 
     The width asked of a zone is capped at half the width of the course around it (the course
-    within *min_width* of the zone's bounding box), so that on a stretch of course narrower than twice the
-    setting the zones that span it are not all merged into one.
+    within *min_width* of the zone's bounding box), so that on a stretch of course narrower than twice
+    the setting the zones that span it are not all merged into one.  ``thin.many(zones)`` answers for
+    an array of zones at once (the same answers, the inscribed circles searched in vectorised calls on
+    all cores, :func:`~courseplan.geo.geometry.in_chunks`).
     """
+    from courseplan.geo.geometry import in_chunks
+
     if min_width <= 0:
         return None
     shapely.prepare(course)
     tol = max(0.01, min_width / 100.0)
     coarse = min_width / 4.0
+    half = 0.5 * min_width + tol
 
-    def width(g: BaseGeometry) -> float:
+    def polygons_of(geoms: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        # The non-empty polygon parts of each zone (as _parts) and the zone each belongs to.
+        parts, owner = shapely.get_parts(geoms, return_index=True)
+        keep = (shapely.get_type_id(parts) == 3) & ~shapely.is_empty(parts)
+        return parts[keep], owner[keep]
+
+    def widths(geoms: np.ndarray, tolerance: float) -> np.ndarray:
+        # width_m of each zone at one tolerance.
+        parts, owner = polygons_of(geoms)
+        w = np.zeros(len(geoms))
+        if parts.size:
+            r = shapely.length(in_chunks(lambda p: shapely.maximum_inscribed_circle(p, tolerance), parts))
+            np.maximum.at(w, owner, 2.0 * r)
+        return w
+
+    def width(geoms: np.ndarray) -> np.ndarray:
         # GEOS finds the inscribed circle's radius to within its tolerance, from below: a coarse
         # search that already reaches min_width settles it; only the others are searched finely.
-        w = width_m(g, coarse)
-        return w if w >= min_width else width_m(g, tol)
+        w = widths(geoms, coarse)
+        low = w < min_width
+        if low.any():
+            w[low] = widths(geoms[low], tol)
+        return w
+
+    def surely_wide(geoms: np.ndarray) -> np.ndarray:
+        # A point inside the outline (``shapely.point_on_surface``, or the centroid when inside) half
+        # the width plus the tolerance from its boundary: the search above would find a circle of
+        # min_width or more, so the answer is known without it.
+        parts, owner = polygons_of(geoms)
+        wide = np.zeros(len(geoms), dtype=bool)
+        if not parts.size:
+            return wide
+        rings = shapely.boundary(parts)
+        wide[owner[shapely.distance(shapely.point_on_surface(parts), rings) >= half]] = True
+        rest = ~wide[owner]
+        if rest.any():
+            parts, owner, rings = parts[rest], owner[rest], rings[rest]
+            cen = shapely.centroid(parts)
+            inside = shapely.contains(parts, cen)
+            wide[owner[inside][shapely.distance(cen[inside], rings[inside]) >= half]] = True
+        return wide
+
+    def many(zones) -> np.ndarray:
+        geoms = np.empty(len(zones), dtype=object)
+        geoms[:] = list(zones)
+        out = np.zeros(len(geoms), dtype=bool)
+        idx = np.flatnonzero(~surely_wide(geoms))
+        if idx.size:
+            w = width(geoms[idx])
+            idx, w = idx[w < min_width], w[w < min_width]
+        if idx.size:
+            local = np.empty(idx.size, dtype=object)
+            m = min_width
+            local[:] = [shapely.clip_by_rect(course, x0 - m, y0 - m, x1 + m, y1 + m)
+                        for x0, y0, x1, y1 in shapely.bounds(geoms[idx]).tolist()]
+            out[idx] = w < np.minimum(min_width, 0.5 * width(local))
+        return out
 
     def thin(g: BaseGeometry) -> bool:
-        w = width(g)
-        if w >= min_width:
-            return False
-        x0, y0, x1, y1 = g.bounds
-        local = shapely.clip_by_rect(course, x0 - min_width, y0 - min_width, x1 + min_width, y1 + min_width)
-        return w < min(min_width, 0.5 * width(local))
+        return bool(many([g])[0])
 
+    thin.many = many
     return thin
 
 
@@ -143,30 +198,30 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
     The cut follows the distance field: the window's course cells are banded at the quantiles,
     the bands polygonised (``rasterio.features.shapes``) and smoothed as one coverage
     (:func:`~courseplan.geo.coverage.smooth_coverage`, *tolerance* [m]), and the zone intersected
-    with each band, so the parts tile the zone.  Each part gets a new pseudo-region whose values are
-    the means of *cells* (one array per name, a value per course cell in *touch* order) over its own
-    cells, appended to *per_region*; returns the zones and the extended *per_region*.
+    with each band, so the parts tile the zone (that GEOS work on another core while the next zone
+    is polygonised, :func:`~courseplan.geo.geometry.in_background`).  Each part gets a new
+    pseudo-region whose values are the means of *cells* (one array per name, a value per course
+    cell in *touch* order) over its own cells, appended to *per_region*; returns the zones and the
+    extended *per_region*.
     """
     import math
 
     from affine import Affine
-    from rasterio.features import shapes
-    from scipy.ndimage import binary_dilation
 
-    from courseplan.geo.regions import polygon_parts
-    from courseplan.geo.geometry import geometry_from_geojson
+    from courseplan.geo.geometry import in_background
+    from courseplan.geo.regions import polygon_parts, polygonise
 
     if max_area <= 0 or not any(z["geom"].area > max_area for z in zones):
         return zones, per_region
-    index = np.full(touch.shape, -1, dtype=np.int32)  # cell raster → position in the *_t arrays
-    index[touch] = np.arange(int(touch.sum()))
+    # Position of a course cell in the *_t arrays (row-major): the course cells of the rows above
+    # plus those to its left; computed per zone window, not for the whole course.
+    row_start = np.concatenate([[0], np.cumsum(touch.sum(axis=1))])
     inv = ~transform
     extra: dict[str, list[float]] = {k: [] for k in per_region}
     n_reg = len(next(iter(per_region.values())))
-    out = []
-    for z in zones:
+    tasks = {}  # zone index → (own cells, their band, band numbers, the cut job)
+    for j, z in enumerate(zones):
         if z["geom"].area <= max_area:
-            out.append(z)
             continue
         # Only the zone's bounding box of cells (plus 3), as flat course cells.
         x0, y0, x1, y1 = z["geom"].bounds
@@ -174,8 +229,10 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         cb, rb = inv * (x1, y0)
         r0, r1 = max(int(ra) - 3, 0), min(int(rb) + 4, touch.shape[0])
         c0, c1 = max(int(ca) - 3, 0), min(int(cb) + 4, touch.shape[1])
-        ids = index[r0:r1, c0:c1]
-        inside = ids >= 0
+        inside = touch[r0:r1, c0:c1]
+        ids = np.cumsum(inside, axis=1) - 1
+        ids += (row_start[r0:r1] + touch[r0:r1, :c0].sum(axis=1))[:, None]
+        ids[~inside] = -1
         sub = ids[inside]
         own = np.isin(region_t[sub], np.asarray(z["regions"]))
         n = int(math.ceil(z["geom"].area / max_area))
@@ -185,21 +242,25 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
         near = np.zeros(ids.shape, dtype=bool)
         near[inside] = own
         # The zone lies within about a cell of its own cells: band only those, grown by two cells.
-        near = binary_dilation(near, iterations=2) & inside
+        near = _grow(_grow(near)) & inside
         win[near] = band_s[near[inside]]
-        polys: dict[int, object] = {}
-        for gj, v in shapes(win, mask=win > 0, connectivity=4, transform=transform @ Affine.translation(c0, r0)):
-            g = geometry_from_geojson(gj)
-            polys[int(v)] = shapely.union(polys[int(v)], g) if int(v) in polys else g
+        polys = polygonise(win, transform @ Affine.translation(c0, r0))
         keys = sorted(polys)
-        smooth, _ = smooth_coverage(np.array([polys[k] for k in keys], dtype=object), tolerance)
-        for k, bp in zip(keys, smooth, strict=True):
-            part = shapely.intersection(z["geom"], shapely.clip_by_rect(bp, x0, y0, x1, y1))
+        # Smoothing and cutting are GEOS work: on another core while the next zone is polygonised.
+        tasks[j] = (sub[own], band_s[own], keys,
+                    in_background(_cut, z["geom"], (x0, y0, x1, y1), [polys[k] for k in keys], tolerance))
+    out = []
+    for j, z in enumerate(zones):
+        if j not in tasks:
+            out.append(z)
+            continue
+        mine_all, band_own, keys, job = tasks[j]
+        for k, part in zip(keys, job.result(), strict=True):
             parts = polygon_parts(part)
             if not parts or part.area <= 0:
                 continue
             geom = parts[0] if len(parts) == 1 else shapely.multipolygons(parts)
-            mine = sub[own & (band_s == k)]
+            mine = mine_all[band_own == k]
             if mine.size:
                 for name, arr in cells.items():
                     extra[name].append(float(np.mean(arr[mine])))
@@ -210,3 +271,23 @@ def split_large_zones(zones: list[dict], max_area: float, region_t: np.ndarray, 
             out.append({**z, "geom": geom, "regions": regions, "weights": weights})
     grown = {k: np.concatenate([v, np.asarray(extra[k], dtype=float)]) for k, v in per_region.items()}
     return out, grown
+
+
+def _cut(zone: BaseGeometry, bounds: tuple, bands: list, tolerance: float) -> list:
+    """Smooth a zone's bands as one coverage, intersect the zone with each (:func:`split_large_zones`)."""
+    x0, y0, x1, y1 = bounds
+    smooth, _ = smooth_coverage(np.array(bands, dtype=object), tolerance)
+    return [shapely.intersection(zone, shapely.clip_by_rect(bp, x0, y0, x1, y1)) for bp in smooth]
+
+
+def _grow(m: np.ndarray) -> np.ndarray:
+    """Grow *m* by one cell to its four neighbours.
+
+    The same as ``scipy.ndimage.binary_dilation`` with the cross, in five numpy operations.
+    """
+    out = m.copy()
+    out[1:] |= m[:-1]
+    out[:-1] |= m[1:]
+    out[:, 1:] |= m[:, :-1]
+    out[:, :-1] |= m[:, 1:]
+    return out

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import shapely
 from shapely.errors import GEOSException
@@ -64,3 +66,69 @@ def clean_polygon(geom: BaseGeometry, grid_size: float) -> BaseGeometry:
     if len(parts) == 1 and geom.geom_type != "MultiPolygon":
         return parts[0]
     return shapely.multipolygons(parts)  # a multipolygon stays one, even with one part left
+
+
+WORKERS = max(1, min(4, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else
+                       (os.cpu_count() or 1)))
+"""Threads for :func:`in_chunks` and :func:`in_background` (the cores this process may run on, at most 4)."""
+
+_POOL: list = []
+_PREFIX = "courseplan-geos"
+
+
+class _Done:
+    """A finished result with the ``result()`` of a future."""
+
+    def __init__(self, value):
+        self.value = value
+
+    def result(self):
+        return self.value
+
+
+def _serial() -> bool:
+    # One core, or already in one of the pool's threads (waiting there on the pool could deadlock).
+    import threading
+
+    return WORKERS < 2 or threading.current_thread().name.startswith(_PREFIX)
+
+
+def _pool():
+    # One pool per process: a pool inherited through fork has no threads, so a child makes its own.
+    if not _POOL or _POOL[0][0] != os.getpid():
+        from concurrent.futures import ThreadPoolExecutor
+
+        _POOL[:] = [(os.getpid(), ThreadPoolExecutor(max_workers=WORKERS - 1, thread_name_prefix=_PREFIX))]
+    return _POOL[0][1]
+
+
+def in_background(fn, *args):
+    """Start ``fn(*args)`` on another core and return its future (``result()``).
+
+    For GEOS work that can overlap work holding the GIL (GDAL's polygonise); with one core it runs
+    now.  *fn* must not read a geometry that the caller goes on using meanwhile (see :func:`in_chunks`).
+    """
+    if _serial():
+        return _Done(fn(*args))
+    return _pool().submit(fn, *args)
+
+
+def in_chunks(fn, *arrays: np.ndarray, min_items: int = 16) -> np.ndarray:
+    """Return ``fn(*arrays)``, computed on :data:`WORKERS` contiguous chunks of the arrays at once.
+
+    For element-wise vectorised shapely functions (``shapely.intersection``,
+    ``shapely.line_locate_point``, ``shapely.maximum_inscribed_circle`` …) and numpy loops: both
+    release the GIL, so the chunks run on several cores in threads
+    (``concurrent.futures.ThreadPoolExecutor``), and the result, concatenated in order, is element
+    for element that of one call.  Fewer than *min_items* elements, or one core, and it is one call.
+    *fn* must not share a geometry between chunks (GEOS geometries are not safe to read from two
+    threads at once: give each chunk its own copy, ``shapely.from_wkb``).
+    """
+    n = len(arrays[0])
+    if n < min_items or _serial():
+        return fn(*arrays)
+    edges = np.linspace(0, n, WORKERS + 1).astype(np.int64)
+    parts = [tuple(a[edges[i]:edges[i + 1]] for a in arrays) for i in range(WORKERS)]
+    futures = [_pool().submit(fn, *p) for p in parts[:-1]]
+    last = fn(*parts[-1])
+    return np.concatenate([f.result() for f in futures] + [np.asarray(last)])

@@ -22,14 +22,16 @@ def burn(geom: BaseGeometry, grid: Grid, all_touched: bool, band_rows: int = 128
                min_vertices: int = 1000) -> np.ndarray:
     """Cells of *grid* inside *geom* (centre inside, or touched with *all_touched*), as booleans.
 
-    ``rasterio.features.rasterize`` (GDAL's scan-line fill) costs about rows × vertices, which for
-    a long, winding course outline on a tall window is most of the zoning time.  The grid is
-    therefore burnt in bands of *band_rows* rows, each with the outline clipped
-    (``shapely.clip_by_rect``) to the band plus one cell on every side: the clip's own edges fall
-    outside the band's cells, so every band is burnt exactly as the whole grid would be.  Outlines
-    of fewer than *min_vertices* vertices, and short grids, are burnt in one pass.
+    ``rasterio.features.rasterize`` (GDAL's scan-line fill) costs about rows × vertices per polygon,
+    which for a long, winding course outline on a tall window is most of the zoning time.  The
+    outline is therefore cut into bands of *band_rows* rows (``shapely.clip_by_rect`` to the band
+    plus one cell on every side) and all the bands are burnt in one ``rasterize`` call: GDAL scans
+    each polygon over its own rows only, so the cost is the sum over the bands of rows × vertices,
+    with one call's overhead.  The pieces are parts of *geom* and together cover it, and the clip's
+    own edges run where *geom* goes on across them, so their cells are the cells of *geom* (a cell
+    the outline only grazes may come out either way, as it does when GDAL's window moves).
+    Outlines of fewer than *min_vertices* vertices, and short grids, are burnt in one pass.
     """
-    from affine import Affine
     from rasterio.features import rasterize
 
     h, w = grid.shape
@@ -37,18 +39,16 @@ def burn(geom: BaseGeometry, grid: Grid, all_touched: bool, band_rows: int = 128
     if h <= 2 * band_rows or shapely.get_num_coordinates(geom) < min_vertices or t.b != 0 or t.d != 0 or t.e >= 0:
         return rasterize([(geom, 1)], out_shape=grid.shape, transform=t, fill=0,
                          all_touched=all_touched, dtype="uint8").astype(bool)
-    out = np.zeros((h, w), dtype=bool)
     ch, cw = -t.e, t.a
     x0, x1 = t.c - cw, t.c + cw * (w + 1)
+    pieces = []
     for r0 in range(0, h, band_rows):
         r1 = min(h, r0 + band_rows)
-        part = shapely.clip_by_rect(geom, x0, t.f - ch * (r1 + 1), x1, t.f - ch * (r0 - 1))
-        burn = _as_arrays(part)
-        if not burn:
-            continue
-        out[r0:r1] = rasterize(burn, out_shape=(r1 - r0, w), transform=t * Affine.translation(0, r0),
-                               fill=0, all_touched=all_touched, dtype="uint8").astype(bool)
-    return out
+        pieces += _as_arrays(shapely.clip_by_rect(geom, x0, t.f - ch * (r1 + 1), x1, t.f - ch * (r0 - 1)))
+    if not pieces:
+        return np.zeros((h, w), dtype=bool)
+    return rasterize(pieces, out_shape=(h, w), transform=t, fill=0, all_touched=all_touched,
+                     dtype="uint8").view(bool)
 
 
 

@@ -39,17 +39,28 @@ def clip_to(polys: np.ndarray, course: BaseGeometry) -> np.ndarray:
 
     Polygons that lie inside the course are kept as they are (``contains_properly`` on the
     prepared course); for the others the overlay runs against the course clipped to the polygon's
-    bounding box (``clip_by_rect``), not against the whole course outline.
+    bounding box (``clip_by_rect``), not against the whole course outline, on all cores
+    (:func:`~courseplan.geo.geometry.in_chunks`).
     """
+    from courseplan.geo.geometry import in_chunks
+
     out = polys.copy()
     shapely.prepare(course)
     cut = ~shapely.contains_properly(course, polys)
-    if cut.any():
-        b = shapely.bounds(polys[cut])
-        local = np.array([shapely.clip_by_rect(course, *bb) for bb in b], dtype=object)
+
+    wkb = shapely.to_wkb(course)
+
+    def clip(p: np.ndarray, b: np.ndarray) -> np.ndarray:
+        # Each chunk reads its own copy of the course: GEOS geometries are not safe to share
+        # between threads (a shared, prepared course crashed).
+        mine = shapely.from_wkb(wkb)
+        local = np.array([shapely.clip_by_rect(mine, *bb) for bb in b], dtype=object)
         bad = ~shapely.is_valid(local)
-        local[bad] = course
-        out[cut] = shapely.intersection(polys[cut], local)
+        local[bad] = mine
+        return shapely.intersection(p, local)
+
+    if cut.any():
+        out[cut] = in_chunks(clip, polys[cut], shapely.bounds(polys[cut]))
     return out
 
 
@@ -80,13 +91,17 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
     if n_reg < 2:
         return region, n_reg
     cw, ch = grid.cell_size
-    area = np.bincount(region[touch], minlength=n_reg + 1).astype(np.float64) * (cw * ch)
+    region_t = region[touch]
+    area = np.bincount(region_t, minlength=n_reg + 1).astype(np.float64) * (cw * ch)
     if not (area[1:] < min_area).any():
         return region, n_reg
     pair_parts, len_parts = [], []
     for a, b, side in ((region[:, :-1], region[:, 1:], ch), (region[:-1, :], region[1:, :], cw)):
-        m = (a != b) & (a > 0) & (b > 0)
-        lo, hi = np.minimum(a[m], b[m]).astype(np.int64), np.maximum(a[m], b[m]).astype(np.int64)
+        m = a != b
+        a, b = a[m], b[m]  # the few cell sides between two regions, then those inside the course
+        m = (a > 0) & (b > 0)
+        a, b = a[m], b[m]
+        lo, hi = np.minimum(a, b).astype(np.int64), np.maximum(a, b).astype(np.int64)
         pair_parts.append(lo * (n_reg + 1) + hi)
         len_parts.append(np.full(lo.size, side))
     keys, inv = np.unique(np.concatenate(pair_parts), return_inverse=True)
@@ -97,7 +112,7 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
         nb[i][j] = nb[i].get(j, 0.0) + length
         nb[j][i] = nb[j].get(i, 0.0) + length
     reg_code = np.zeros(n_reg + 1, dtype=np.int64)
-    reg_code[region[touch]] = code[touch]
+    reg_code[region_t] = code[touch]
     key = [code_key(c, n_exp, n_slope) for c in reg_code.tolist()]
     alive = np.ones(n_reg + 1, dtype=bool)
     alive[0] = False
@@ -144,7 +159,39 @@ def merge_small_regions(region: np.ndarray, n_reg: int, code: np.ndarray, touch:
     lut[survivors] = np.arange(1, survivors.size + 1, dtype=np.int32)
     lut = lut[target]
     lut[0] = 0
-    return lut[region], int(survivors.size)
+    out = np.zeros(region.shape, dtype=np.int32)  # regions lie on the course's cells only
+    out[touch] = lut[region_t]
+    return out, int(survivors.size)
+
+
+
+def polygonise(labels: np.ndarray, transform) -> dict[int, BaseGeometry]:
+    """One polygon per non-zero label of a raster (``rasterio.features.shapes``, 4-connected).
+
+    A label in several 4-connected pieces comes back as their union.  The rings are built from the
+    coordinate lists with ``numpy.fromiter`` (about twice as fast as
+    :func:`~courseplan.geo.geometry.geometry_from_geojson`, the same polygons).
+    """
+    from itertools import chain
+
+    from rasterio.features import shapes
+
+    from courseplan.geo.geometry import geometry_from_geojson
+
+    def ring(r: list) -> np.ndarray:
+        return np.fromiter(chain.from_iterable(r), dtype=np.float64, count=2 * len(r)).reshape(-1, 2)
+
+    polys: dict[int, BaseGeometry] = {}
+    for gj, val in shapes(labels, mask=labels > 0, connectivity=4, transform=transform):
+        coords = gj.get("coordinates")
+        if gj.get("type") == "Polygon" and coords and all(len(r) >= 4 for r in coords):
+            rings = [shapely.linearrings(ring(r)) for r in coords]
+            g = shapely.polygons(rings[0], holes=rings[1:] or None)
+        else:
+            g = geometry_from_geojson(gj)
+        k = int(val)
+        polys[k] = shapely.union(polys[k], g) if k in polys else g
+    return polys
 
 
 
@@ -189,7 +236,14 @@ def merge_small_pieces(pieces: list[dict], min_area: float, n_exp: int, n_slope:
     def flagged(z: dict) -> bool:
         return z["geom"].area < min_area or (thin is not None and bool(thin(z["geom"])))
 
-    flag = {i for i, z in enumerate(zones) if flagged(z)}
+    small = np.array([z["geom"].area < min_area for z in zones], dtype=bool)
+    if thin is not None and hasattr(thin, "many") and not small.all():
+        # The same flags as flagged(), the slivers tested in one vectorised pass.
+        big = np.flatnonzero(~small)
+        small[big] = thin.many([zones[i]["geom"] for i in big.tolist()])
+        flag = set(np.flatnonzero(small).tolist())
+    else:
+        flag = {i for i, z in enumerate(zones) if flagged(z)}
     while flag:
         i = min(flag, key=lambda j: (zones[j]["geom"].area, j))
         flag.discard(i)

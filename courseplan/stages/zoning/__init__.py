@@ -34,12 +34,10 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
-import shapely
 from shapely.geometry.base import BaseGeometry
 
 from courseplan.columns import check_stage
 from courseplan.geo.coverage import ensure_tiling, smooth_coverage, split_large_zones, thin_test
-from courseplan.geo.geometry import geometry_from_geojson
 from courseplan.geo.regions import (
     clip_to,
     code_key,
@@ -48,6 +46,7 @@ from courseplan.geo.regions import (
     merge_small_pieces,
     merge_small_regions,
     polygon_parts,
+    polygonise,
 )
 from courseplan.grid import Grid
 from courseplan.settings import Zoning
@@ -73,10 +72,13 @@ def _merge_alike(merged: list[dict], settings: Zoning, breaks: list[float], n_ex
     sun_step = share * spacing
     slope_step = settings.alike_slope_deg
 
+    sun0 = np.nan_to_num(r_sun)  # once, not per zone (nan_to_num costs tens of µs a call)
+    slope0 = np.nan_to_num(r_slope) if r_slope is not None else None
+
     def summary(z: dict) -> tuple:
         regs, w = np.asarray(z["regions"]), np.asarray(z["weights"])
-        sun = float(np.sum(w * np.nan_to_num(r_sun[regs])) / w.sum())
-        slope = float(np.sum(w * np.nan_to_num(r_slope[regs])) / w.sum()) if r_slope is not None else 0.0
+        sun = float(np.sum(w * sun0[regs]) / w.sum())
+        slope = float(np.sum(w * slope0[regs]) / w.sum()) if slope0 is not None else 0.0
         _, slope_class, section = code_key(z["code"], n_exp, n_slope)
         return section, sun, slope, slope_class
 
@@ -253,7 +255,7 @@ def zone_given(inp: ZoningInputs, settings: Zoning, geoms, ids, labels=None, *, 
 
 def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                  max_uncovered_pct: float) -> ZoningResult:
-    from rasterio.features import shapes, sieve
+    from rasterio.features import sieve
 
     c = course_cells(inp, settings, window_hours=window_hours, max_uncovered_pct=max_uncovered_pct)
     touch, ct, cgrid, rows, vt, notes, n_exp = c.touch, c.ct, c.cgrid, c.rows, c.vt, c.notes, c.n_exp
@@ -290,17 +292,19 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         r_sec = mean(1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))))
     else:
         r_slope, r_sec = np.zeros(nreg), np.ones(nreg)
-    a_sin = np.sin(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
-    a_cos = np.cos(np.radians(aspect_t)) if aspect_t is not None else np.full(vt.size, np.nan)
-    r_asin, r_acos = mean(a_sin), mean(a_cos)
+    def const(v: float) -> np.ndarray:  # the same value for every cell, without the memory
+        return np.broadcast_to(np.float64(v), (vt.size,))
+
+    if aspect_t is not None:
+        a_sin, a_cos = np.sin(np.radians(aspect_t)), np.cos(np.radians(aspect_t))
+        r_asin, r_acos = mean(a_sin), mean(a_cos)
+    else:  # no aspect: NaN for every cell and so for every region
+        a_sin = a_cos = const(np.nan)
+        r_asin, r_acos = np.full(nreg, np.nan), np.full(nreg, np.nan)
 
     # One polygon per region (each region is 4-connected).  The region polygons are a coverage
     # (edge-matched, from one raster): smooth their shared edges as one, then clip to the exact course.
-    polys: dict[int, BaseGeometry] = {}
-    for gj, val in shapes(region, mask=region > 0, connectivity=4, transform=ct):
-        r = int(val)
-        g = geometry_from_geojson(gj)
-        polys[r] = shapely.union(polys[r], g) if r in polys else g
+    polys = polygonise(region, ct)
     reg_ids = sorted(polys)
     raw, smoothed = smooth_coverage(np.array([polys[r] for r in reg_ids], dtype=object), max(cgrid.cell_size))
     if len(reg_ids) > 1 and not smoothed:
@@ -317,10 +321,10 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
                           list(settings.slope_breaks_deg) if slope_t is not None else None)
     # Zones too big for one crew in one window: cut across the course (the parts get their own means).
     cap = max(settings.max_zone_area_m2, 2.0 * settings.min_zone_area_m2) if settings.max_zone_area_m2 > 0 else 0
-    secant_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else np.ones(vt.size)
+    secant_t = 1.0 / np.cos(np.radians(np.clip(slope_t, 0, 85))) if slope_t is not None else const(1.0)
     merged, rv = split_large_zones(
         merged, cap, region_t, dist_t, touch, ct, max(cgrid.cell_size),
-        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else np.zeros(vt.size), "sec": secant_t,
+        {"sun": vt, "dist": dist_t, "slope": slope_t if slope_t is not None else const(0.0), "sec": secant_t,
          "asin": a_sin, "acos": a_cos},
         {"sun": r_sun, "dist": r_dist, "slope": r_slope, "sec": r_sec, "asin": r_asin, "acos": r_acos})
     r_sun, r_dist, r_slope, r_sec = rv["sun"], rv["dist"], rv["slope"], rv["sec"]
@@ -331,6 +335,10 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
 
     cols_out: dict[str, list] = {k: [] for k in _ZONE_COLS}
     geoms = []
+    # NaN (a region without cells) counts as 0 (sec: 1); converted once for all zones.
+    r_sun, r_slope, r_dist = np.nan_to_num(r_sun), np.nan_to_num(r_slope), np.nan_to_num(r_dist)
+    r_sec, has_aspect = np.nan_to_num(r_sec, nan=1.0), np.isfinite(r_aspect)
+    r_sin, r_cos = np.sin(np.radians(np.nan_to_num(r_aspect))), np.cos(np.radians(np.nan_to_num(r_aspect)))
     for z in merged:
         regs = np.array(z["regions"])
         w = np.array(z["weights"])
@@ -339,14 +347,12 @@ def _zone_course(inp: ZoningInputs, settings: Zoning, *, window_hours: float,
         sl = code0 % n_slope
         ex = (code0 // n_slope) % n_exp
         sc = code0 // (n_slope * n_exp)
-        asp = r_aspect[regs]
-        ang = np.radians(np.nan_to_num(asp))
-        aspect_mean = float(np.degrees(np.arctan2(np.sum(w * np.sin(ang)), np.sum(w * np.cos(ang)))) % 360) \
-            if np.isfinite(asp).any() else float("nan")
-        _row(cols_out, c, inp.encoding, ex, sl, sc, sun=float(np.sum(w * np.nan_to_num(r_sun[regs])) / wsum),
-             slope=float(np.sum(w * np.nan_to_num(r_slope[regs])) / wsum), aspect=aspect_mean,
-             dist=float(np.sum(w * np.nan_to_num(r_dist[regs])) / wsum), area=float(z["geom"].area),
-             sec_mean=float(np.sum(w * np.nan_to_num(r_sec[regs], nan=1.0)) / wsum))
+        aspect_mean = float(np.degrees(np.arctan2(np.sum(w * r_sin[regs]), np.sum(w * r_cos[regs]))) % 360) \
+            if has_aspect[regs].any() else float("nan")
+        _row(cols_out, c, inp.encoding, ex, sl, sc, sun=float(np.sum(w * r_sun[regs]) / wsum),
+             slope=float(np.sum(w * r_slope[regs]) / wsum), aspect=aspect_mean,
+             dist=float(np.sum(w * r_dist[regs]) / wsum), area=float(z["geom"].area),
+             sec_mean=float(np.sum(w * r_sec[regs]) / wsum))
         geoms.append(z["geom"])
     return _result(c, cols_out, geoms)
 

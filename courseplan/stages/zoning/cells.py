@@ -50,7 +50,12 @@ def course_cells(inp, settings: Zoning, *, window_hours: float,
     del touch_w
     ct = grid.transform @ Affine.translation(int(cc[0]), int(rr[0]))
     cgrid = Grid(values=grid.values[box], transform=ct, crs=grid.crs, source=grid.source)
-    rows, cols = np.nonzero(touch)
+    # Row-major like numpy.nonzero, as int32 (divided and multiplied several times faster than int64).
+    flat = np.flatnonzero(touch)
+    flat = flat.astype(np.int32) if touch.size < 2**31 else flat
+    rows = flat // touch.shape[1]
+    cols = flat - rows * touch.shape[1]
+    del flat
     v = cgrid.values
     vt = v[touch].astype(np.float64)
     valid_t = np.isfinite(vt)
@@ -71,7 +76,7 @@ def course_cells(inp, settings: Zoning, *, window_hours: float,
         notes.append(f"{grid.source}: {100 * uncovered:.1f} % of the course has no sun data; filled from the "
                      "nearest cells")
     lo, hi = ENCODING_RANGE[inp.encoding]
-    vv = vt[valid_t]
+    vv = vt if valid_t.all() else vt[valid_t]
     tol = 1e-6 * max(1.0, hi)
     if vv.min() < lo - tol or vv.max() > hi + tol:
         raise InputError(f"sun raster values {vv.min():.4g} … {vv.max():.4g} are outside the range "
