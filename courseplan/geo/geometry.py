@@ -68,9 +68,18 @@ def clean_polygon(geom: BaseGeometry, grid_size: float) -> BaseGeometry:
     return shapely.multipolygons(parts)  # a multipolygon stays one, even with one part left
 
 
-WORKERS = max(1, min(4, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else
-                       (os.cpu_count() or 1)))
-"""Threads for :func:`in_chunks` and :func:`in_background` (the cores this process may run on, at most 4)."""
+def _workers() -> int:
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    try:  # COURSEPLAN_THREADS=1 turns the threads off (one core, as the minimal benchmark script)
+        cap = int(os.environ.get("COURSEPLAN_THREADS", "4"))
+    except ValueError:
+        cap = 4
+    return max(1, min(4, cap, cores))
+
+
+WORKERS = _workers()
+"""Threads for :func:`in_chunks` and :func:`in_background`: the cores this process may run on, at most 4
+(or ``COURSEPLAN_THREADS``)."""
 
 _POOL: list = []
 _PREFIX = "courseplan-geos"
