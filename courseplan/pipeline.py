@@ -104,7 +104,7 @@ class PlanResult:
         """Plan totals (all zones): areas, masses, loads."""
         z = self.zones
         treated = z["product_kg"] > 0
-        orders = self.logistics.orders or (self.logistics.order,)
+        orders = self.logistics.order_lines
         return {
             "agent": self.agent.name,
             "agent_label": self.agent.label,

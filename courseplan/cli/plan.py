@@ -120,11 +120,10 @@ def plan_command(plan_file, out_dir, overwrite, quiet, show_zones, as_json, debu
 def summary_lines(result, out_dir: Path) -> list[tuple[str, str, str | None]]:
     """The compact summary as ``(prefix, text, style)`` entries (one entry may wrap to several lines)."""
     tot = result.totals()
-    o = result.logistics.order
     log = result.logistics.summary()
     pl = result.settings.plan
     out: list[tuple[str, str, str | None]] = [("", f"{pl.name} — {pl.date} — {result.agent.label}", "bold")]
-    orders = result.logistics.orders or (o,)
+    orders = result.logistics.order_lines
     mixed = len(orders) > 1  # zones with their own agent: a product and an order line per agent
     for od in orders:
         kg = tot["by_agent"][od.agent]["product_kg"] if mixed else tot["total_product_kg"]

@@ -234,7 +234,7 @@ def write_gpkg(path: Path, result) -> None:
 
 def _agents_text(result) -> str:
     """The plan's agent, and the zones with their own (``rock salt (NaCl); zone 4 urea (CO(NH2)2)``)."""
-    orders = result.logistics.orders or (result.logistics.order,)
+    orders = result.logistics.order_lines
     if len(orders) < 2:
         return result.agent.label
     z = result.zones

@@ -174,7 +174,7 @@ def crews_pdf(result: Any, course_geom: Any, *, plan_name: str,
     doses = zt.get("edit_dose_g_m2", [None] * len(zt))
     fixed = {int(i): fixed_dose_text(d) for i, d in zip(zt["zone_id"], doses, strict=True)
              if fixed_dose_text(d)}
-    labels = {o.agent: o.agent_label for o in (result.orders or (result.order,))}
+    labels = {o.agent: o.agent_label for o in result.order_lines}
     plan_agent = result.order.agent
     own = {int(i): labels.get(a, a) for i, a in zip(zt["zone_id"], zt.get("agent", [plan_agent] * len(zt)),
                                                     strict=True) if a != plan_agent}  # zones with their own agent

@@ -125,6 +125,11 @@ class LogisticsResult:
     method: str = ""
     orders: tuple[Order, ...] = ()  # one line per agent, the plan's first (``order``); more in a mixed plan
 
+    @property
+    def order_lines(self) -> tuple[Order, ...]:
+        """Every agent's order line, the plan's first (``(order,)`` when no lines were given)."""
+        return self.orders or (self.order,)
+
     def summary(self) -> dict[str, Any]:
         """Plain, JSON-ready figures for ``summary.json`` under ``"order"`` and ``"crews"``.
 
@@ -181,7 +186,7 @@ class LogisticsResult:
                 } for z in zs.itertuples(index=False)],
             })
         return {"order": order,
-                "other_orders": [_order_summary(o, self.depots) for o in self.orders[1:]],
+                "other_orders": [_order_summary(o, self.depots) for o in self.order_lines[1:]],
                 "crews": {"count": len(crews), "crs": None if crs is None else crs.to_string(),
                           "first_start": self.first_start, "wait_min": _r(self.wait_min, 0),
                           "handful_g": _r(self.handful_g, 0), "notes": list(self.notes),
